@@ -1,0 +1,194 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"strings"
+	"time"
+
+	"goniod/client"
+)
+
+// progress renders a one-line progress display: in place on a terminal, as occasional lines otherwise.
+type progress struct {
+	w       io.Writer
+	tty     bool
+	id      string
+	state   client.State
+	reason  string
+	total   int
+	done    int
+	rate    float64
+	lead    string
+	angle   float64
+	t0      time.Time
+	done0   int
+	last    time.Time
+	lastPct int
+	drawn   bool
+}
+
+func (p *progress) eta() string {
+	if p.done <= p.done0 || p.total == 0 {
+		return "--:--"
+	}
+	el := time.Since(p.t0)
+	per := el / time.Duration(p.done-p.done0)
+	left := per * time.Duration(p.total-p.done)
+	h, m, s := int(left.Hours()), int(left.Minutes())%60, int(left.Seconds())%60
+	if h > 0 {
+		return fmt.Sprintf("%d:%02d:%02d", h, m, s)
+	}
+	return fmt.Sprintf("%d:%02d", m, s)
+}
+
+func (p *progress) line() string {
+	pct := 0
+	if p.total > 0 {
+		pct = 100 * p.done / p.total
+	}
+	s := fmt.Sprintf("%s %-11s %d/%d %3d%%  ETA %s  %.0f cps", p.id, p.state, p.done, p.total, pct, p.eta(), p.rate)
+	if p.lead != "" {
+		s += fmt.Sprintf("  %s %.3f°", p.lead, p.angle)
+	}
+	return s
+}
+
+// update redraws when due.
+func (p *progress) update(force bool) {
+	now := time.Now()
+	if p.tty {
+		if !force && now.Sub(p.last) < 100*time.Millisecond {
+			return
+		}
+		fmt.Fprintf(p.w, "\r\033[K%s", p.line())
+		p.drawn = true
+		p.last = now
+		return
+	}
+	pct := 0
+	if p.total > 0 {
+		pct = 100 * p.done / p.total
+	}
+	if force || pct/10 > p.lastPct/10 {
+		fmt.Fprintln(p.w, p.line())
+		p.lastPct = pct
+	}
+}
+
+// finish ends the in-place line.
+func (p *progress) finish() {
+	if p.tty && p.drawn {
+		fmt.Fprintln(p.w)
+	}
+}
+
+// follow watches a scan until it ends. With points set, every point is printed to stdout (as a table row, or a
+// JSON/CSV line); state changes and progress go to stderr. The error reports a scan that failed or was cancelled.
+func (a *app) follow(c *client.Client, id string, points bool) error {
+	st, err := c.Watch(a.ctx, id, 0)
+	if err != nil {
+		return err
+	}
+	pr := &progress{w: a.stderr, tty: isTerminal(a.stderr) && !points, id: id, t0: time.Now(), done0: -1}
+	var printer *pointPrinter
+	var final *client.Scan
+	for ev := range st.C {
+		if ev.Scan != nil {
+			s := ev.Scan
+			if printer == nil && points {
+				printer = a.newPointPrinter(*s)
+			}
+			if s.State != pr.state || s.Reason != pr.reason {
+				if pr.state != "" || s.State != client.Running || points {
+					pr.finish()
+					msg := fmt.Sprintf("%s %s", id, s.State)
+					if s.Reason != "" {
+						msg += ": " + s.Reason
+					}
+					fmt.Fprintln(a.stderr, msg)
+					pr.drawn = false
+				}
+			}
+			pr.state, pr.reason, pr.total, pr.done = s.State, s.Reason, s.PointsTotal, s.PointsDone
+			if pr.done0 < 0 {
+				pr.done0, pr.t0 = s.PointsDone, time.Now()
+			}
+			if ev.End {
+				final = s
+			}
+			continue
+		}
+		if p := ev.Point; p != nil {
+			pr.done, pr.rate = p.Index+1, p.Rate
+			if len(p.Axes) > 0 {
+				pr.lead, pr.angle = p.Axes[0].Name, p.Axes[0].Actual
+			}
+			if points {
+				if err := printer.print(*p); err != nil {
+					return err
+				}
+			} else {
+				pr.update(false)
+			}
+		}
+	}
+	if !points {
+		pr.update(true)
+		pr.finish()
+	}
+	if err := st.Err(); err != nil {
+		return err
+	}
+	if final == nil {
+		return fmt.Errorf("watch of %s ended early", id)
+	}
+	if final.State != client.Done {
+		return withCode(exitScanFailed, fmt.Errorf("scan %s ended %s: %s", id, final.State, final.Reason))
+	}
+	return nil
+}
+
+// pointPrinter writes points in the chosen output format.
+type pointPrinter struct {
+	a      *app
+	scan   client.Scan
+	header bool
+	buf    []byte
+}
+
+func (a *app) newPointPrinter(s client.Scan) *pointPrinter { return &pointPrinter{a: a, scan: s} }
+
+func (pp *pointPrinter) print(p client.Point) error {
+	table := client.PointTable(pp.scan)
+	switch pp.a.output {
+	case "json":
+		pp.buf = table.AppendJSON(pp.buf[:0], p.Proto())
+		_, err := pp.a.stdout.Write(pp.buf)
+		return err
+	case "csv":
+		if !pp.header {
+			pp.header = true
+			if _, err := io.WriteString(pp.a.stdout, table.Header()); err != nil {
+				return err
+			}
+		}
+		pp.buf = table.AppendCSV(pp.buf[:0], p.Proto())
+		_, err := pp.a.stdout.Write(pp.buf)
+		return err
+	}
+	if !pp.header {
+		pp.header = true
+		var cols []string
+		for _, ax := range p.Axes {
+			cols = append(cols, fmt.Sprintf("%10s", ax.Name+"_deg"))
+		}
+		fmt.Fprintf(pp.a.stdout, "%6s %s %8s %10s %12s %10s\n", "index", strings.Join(cols, " "), "dwell_s", "counts", "rate_cps", "±err")
+	}
+	var cols []string
+	for _, ax := range p.Axes {
+		cols = append(cols, fmt.Sprintf("%10.4f", ax.Actual))
+	}
+	_, err := fmt.Fprintf(pp.a.stdout, "%6d %s %8.3g %10d %12.2f %10.2f\n", p.Index, strings.Join(cols, " "), p.Dwell, p.Counts, p.Rate, p.RateErr)
+	return err
+}

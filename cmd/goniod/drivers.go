@@ -1,0 +1,7 @@
+package main
+
+// The drivers compiled into goniod. Each registers itself by name in its init function; the configuration's
+// "driver" key (or --sim / --serial) picks one.
+import (
+	_ "goniod/sim" // "sim": the simulated instrument, the default
+)

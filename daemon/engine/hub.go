@@ -1,0 +1,94 @@
+package engine
+
+import (
+	"sync"
+
+	"goniod/daemon/scan"
+	goniodv1 "goniod/proto/goniod/v1"
+)
+
+// ringSize is how many recent points a hub keeps in memory for live watchers; a watcher further behind
+// reads from the store. It bounds memory per running scan whatever the number or speed of watchers.
+const ringSize = 4096
+
+// hub publishes one scan's durable points and state changes to any number of watchers. The publisher never
+// waits for a watcher: each watcher pulls at its own pace and wakes on a channel that is closed at every change.
+type hub struct {
+	mu      sync.Mutex
+	ring    []*goniodv1.Point // ring[i % ringSize] holds point i for i in [durable-len, durable)
+	durable int               // points durable on disk
+	rec     scan.Record       // latest record
+	version uint64            // bumped at every state change
+	changed chan struct{}
+}
+
+func newHub(rec scan.Record, durable int) *hub {
+	return &hub{rec: rec, durable: durable, changed: make(chan struct{})}
+}
+
+// publish makes durable points visible; points must continue the sequence.
+func (h *hub) publish(points ...*goniodv1.Point) {
+	h.mu.Lock()
+	if h.ring == nil {
+		h.ring = make([]*goniodv1.Point, ringSize)
+	}
+	for _, p := range points {
+		h.ring[int(p.Index)%ringSize] = p
+		h.durable = int(p.Index) + 1
+	}
+	h.rec.PointsDone = h.durable
+	h.wakeLocked()
+	h.mu.Unlock()
+}
+
+// setRecord publishes a state change.
+func (h *hub) setRecord(rec scan.Record) {
+	h.mu.Lock()
+	h.rec = rec
+	h.version++
+	if rec.State.Terminal() || rec.State == scan.Queued || rec.State == scan.Held {
+		h.ring = nil // not running: free the memory; watchers read the store
+	}
+	h.wakeLocked()
+	h.mu.Unlock()
+}
+
+func (h *hub) wakeLocked() {
+	close(h.changed)
+	h.changed = make(chan struct{})
+}
+
+// view is what a watcher sees at one moment.
+type view struct {
+	points  []*goniodv1.Point // in-memory points from the cursor on (empty when behind the ring or caught up)
+	durable int
+	rec     scan.Record
+	version uint64
+	changed <-chan struct{}
+}
+
+// look returns the state for a watcher at cursor, with at most max in-memory points.
+func (h *hub) look(cursor, max int) view {
+	h.mu.Lock()
+	defer h.mu.Unlock()
+	v := view{durable: h.durable, rec: h.rec, version: h.version, changed: h.changed}
+	oldest := h.durable - ringSize
+	if h.ring != nil && cursor < h.durable && cursor >= oldest && cursor >= 0 {
+		end := min(h.durable, cursor+max)
+		for i := cursor; i < end; i++ {
+			p := h.ring[i%ringSize]
+			if p == nil || int(p.Index) != i {
+				break // not in memory (scan resumed after a restart): read from the store
+			}
+			v.points = append(v.points, p)
+		}
+	}
+	return v
+}
+
+// record returns the latest record.
+func (h *hub) record() scan.Record {
+	h.mu.Lock()
+	defer h.mu.Unlock()
+	return h.rec
+}

@@ -1,0 +1,266 @@
+// Package server wires goniod together: data directory, driver, instrument controller, scan engine, gRPC
+// services and the metrics endpoint, and shuts them down in order, leaving the instrument safe.
+package server
+
+import (
+	"context"
+	"crypto/tls"
+	"crypto/x509"
+	"errors"
+	"fmt"
+	"log/slog"
+	"net"
+	"net/http"
+	"os"
+	"sync"
+	"time"
+
+	"github.com/prometheus/client_golang/prometheus"
+	"github.com/prometheus/client_golang/prometheus/collectors"
+	"github.com/prometheus/client_golang/prometheus/promhttp"
+	"google.golang.org/grpc"
+	"google.golang.org/grpc/credentials"
+	"google.golang.org/grpc/health"
+	healthpb "google.golang.org/grpc/health/grpc_health_v1"
+	"google.golang.org/grpc/reflection"
+
+	"goniod/daemon/api"
+	"goniod/daemon/config"
+	"goniod/daemon/engine"
+	"goniod/daemon/instrument"
+	"goniod/daemon/metrics"
+	"goniod/daemon/store"
+	"goniod/driver"
+	goniodv1 "goniod/proto/goniod/v1"
+)
+
+// Options are what Run needs. The configuration file has been merged with the flags.
+type Options struct {
+	Config  *config.File
+	Version string
+	Log     *slog.Logger
+	// Listeners made by the caller (tests listen on port 0); nil means listen on the configured addresses.
+	Listener        net.Listener
+	MetricsListener net.Listener
+	// Ready is called with the addresses once the daemon serves.
+	Ready func(grpcAddr, metricsAddr string)
+}
+
+// maxMessageBytes bounds one gRPC message in either direction.
+const maxMessageBytes = 16 << 20
+
+// Run runs the daemon until ctx ends, then shuts down: the running scan stops between points and is
+// interrupted, high voltage goes off, servers stop.
+func Run(ctx context.Context, o Options) error {
+	cfg, log := o.Config, o.Log
+	if cfg.Data == "" {
+		cfg.Data = config.DefaultDataDir()
+	}
+	if err := checkListen(cfg, log); err != nil {
+		return err
+	}
+	st, err := store.Open(cfg.Data, log)
+	if err != nil {
+		return err
+	}
+	defer st.Close()
+	log.Info("data directory", "path", cfg.Data)
+
+	drvName := cfg.Driver
+	if drvName == "" {
+		drvName = "sim"
+	}
+	openCtx, cancelOpen := context.WithTimeout(ctx, 30*time.Second)
+	drv, err := driver.Open(openCtx, drvName, driver.Params{Decode: cfg.DriverDecoder(drvName), Logger: log.With("driver", drvName)})
+	cancelOpen()
+	if err != nil {
+		return err
+	}
+	defer drv.Close()
+
+	icfg, err := instrumentConfig(cfg, drvName, drv)
+	if err != nil {
+		return err
+	}
+	ctl, err := instrument.NewController(drv, icfg, log.With("part", "instrument"))
+	if err != nil {
+		return fmt.Errorf("driver %s: %w", drvName, err)
+	}
+	// The controller outlives the engine so the engine can leave the instrument safe on the way out.
+	ctlCtx, stopCtl := context.WithCancel(context.Background())
+	var wg sync.WaitGroup
+	wg.Add(1)
+	go func() { defer wg.Done(); ctl.Run(ctlCtx) }()
+	defer func() { stopCtl(); wg.Wait() }()
+
+	// Safety: the daemon never leaves high voltage on from before its start.
+	offCtx, cancelOff := context.WithTimeout(ctx, 10*time.Second)
+	if err := ctl.SetHighVoltage(offCtx, false); err != nil {
+		log.Warn("could not switch high voltage off at start", "err", err)
+	} else {
+		log.Info("high voltage off at start (goniod never switches it on by itself)")
+	}
+	cancelOff()
+	if id, err := ctl.Identify(ctx); err == nil {
+		log.Info("instrument", "identity", id, "driver", drvName, "config_hash", icfg.Hash())
+	}
+
+	reg := prometheus.NewRegistry()
+	reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
+	var eng *engine.Engine
+	m := metrics.New(reg, ctl, func() int { return eng.QueueLength() })
+	eng, err = engine.New(engine.Options{Store: st, Controller: ctl, Log: log.With("part", "engine"), Observer: m, Version: o.Version})
+	if err != nil {
+		return err
+	}
+
+	sopts := []grpc.ServerOption{grpc.MaxRecvMsgSize(maxMessageBytes), grpc.MaxSendMsgSize(maxMessageBytes)}
+	if cfg.Security.TLSCert != "" || cfg.Security.TLSKey != "" {
+		creds, err := serverTLS(cfg.Security)
+		if err != nil {
+			return err
+		}
+		sopts = append(sopts, grpc.Creds(creds))
+		log.Info("TLS on", "client_certificates_required", cfg.Security.TLSClientCA != "")
+	}
+	gs := grpc.NewServer(sopts...)
+	goniodv1.RegisterScansServer(gs, &api.ScanService{Engine: eng})
+	goniodv1.RegisterInstrumentServer(gs, &api.InstrumentService{Engine: eng, Controller: ctl, Version: o.Version})
+	goniodv1.RegisterAnalysisServer(gs, &api.AnalysisService{})
+	hs := health.NewServer()
+	healthpb.RegisterHealthServer(gs, hs)
+	reflection.Register(gs)
+
+	lis := o.Listener
+	if lis == nil {
+		if lis, err = net.Listen("tcp", cfg.Listen); err != nil {
+			return fmt.Errorf("listen %s: %w", cfg.Listen, err)
+		}
+	}
+	mlis := o.MetricsListener
+	if mlis == nil {
+		if mlis, err = net.Listen("tcp", cfg.MetricsListen); err != nil {
+			lis.Close()
+			return fmt.Errorf("metrics listen %s: %w", cfg.MetricsListen, err)
+		}
+	}
+	mux := http.NewServeMux()
+	mux.Handle("/metrics", promhttp.HandlerFor(reg, promhttp.HandlerOpts{Registry: reg}))
+	hsrv := &http.Server{Handler: mux, ReadHeaderTimeout: 10 * time.Second}
+
+	engCtx, stopEng := context.WithCancel(context.Background())
+	errs := make(chan error, 2)
+	var engDone sync.WaitGroup
+	engDone.Add(1)
+	go func() { defer engDone.Done(); eng.Run(engCtx) }()
+	go func() { errs <- gs.Serve(lis) }()
+	go func() {
+		if err := hsrv.Serve(mlis); !errors.Is(err, http.ErrServerClosed) {
+			errs <- err
+		}
+	}()
+	log.Info("goniod serving", "listen", lis.Addr().String(), "metrics", mlis.Addr().String(), "driver", drvName)
+	if o.Ready != nil {
+		o.Ready(lis.Addr().String(), mlis.Addr().String())
+	}
+
+	var runErr error
+	select {
+	case <-ctx.Done():
+		log.Info("shutting down")
+	case runErr = <-errs:
+		log.Error("server failed", "err", runErr)
+	}
+	hs.Shutdown()
+	stopEng()
+	engDone.Wait()
+	if !cfg.Safety.KeepHighVoltageOnShutdown {
+		offCtx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+		if err := ctl.SetHighVoltage(offCtx, false); err != nil {
+			log.Warn("high voltage off at shutdown failed; halting", "err", err)
+			_ = ctl.Halt()
+		} else {
+			log.Info("high voltage off at shutdown")
+		}
+		cancel()
+	}
+	stopped := make(chan struct{})
+	go func() { gs.GracefulStop(); close(stopped) }()
+	select {
+	case <-stopped:
+	case <-time.After(3 * time.Second):
+		gs.Stop()
+	}
+	shutCtx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+	_ = hsrv.Shutdown(shutCtx)
+	cancel()
+	return runErr
+}
+
+// instrumentConfig builds the effective instrument configuration: the driver's description, then the file.
+func instrumentConfig(cfg *config.File, drvName string, drv driver.Instrument) (instrument.Config, error) {
+	var desc driver.Description
+	if d, ok := drv.(driver.Describer); ok {
+		desc = d.Describe()
+	}
+	name := cfg.Instrument.Name
+	if name == "" {
+		name = drvName
+	}
+	ic := instrument.FromDescription(name, drvName, desc)
+	if err := cfg.Apply(&ic); err != nil {
+		return ic, fmt.Errorf("instrument configuration: %w", err)
+	}
+	return ic, nil
+}
+
+// serverTLS loads the server certificate and, when given, the CA that client certificates must chain to.
+func serverTLS(sec config.Security) (credentials.TransportCredentials, error) {
+	if sec.TLSCert == "" || sec.TLSKey == "" {
+		return nil, errors.New("TLS needs both --tls-cert and --tls-key")
+	}
+	cert, err := tls.LoadX509KeyPair(sec.TLSCert, sec.TLSKey)
+	if err != nil {
+		return nil, fmt.Errorf("TLS certificate: %w", err)
+	}
+	tc := &tls.Config{Certificates: []tls.Certificate{cert}, MinVersion: tls.VersionTLS12}
+	if sec.TLSClientCA != "" {
+		pem, err := os.ReadFile(sec.TLSClientCA)
+		if err != nil {
+			return nil, fmt.Errorf("TLS client CA: %w", err)
+		}
+		pool := x509.NewCertPool()
+		if !pool.AppendCertsFromPEM(pem) {
+			return nil, fmt.Errorf("TLS client CA %s: no PEM certificates", sec.TLSClientCA)
+		}
+		tc.ClientCAs, tc.ClientAuth = pool, tls.RequireAndVerifyClientCert
+	}
+	return credentials.NewTLS(tc), nil
+}
+
+// checkListen refuses a non-loopback gRPC listen address without TLS unless insecure is set explicitly.
+func checkListen(cfg *config.File, log *slog.Logger) error {
+	host, _, err := net.SplitHostPort(cfg.Listen)
+	if err != nil {
+		return fmt.Errorf("listen %q: %w", cfg.Listen, err)
+	}
+	if isLoopback(host) {
+		return nil
+	}
+	switch {
+	case cfg.Security.TLSCert != "" && cfg.Security.TLSKey != "":
+		return nil
+	case cfg.Security.Insecure:
+		log.Warn("INSECURE: serving on a non-loopback address without TLS; anyone on the network can read and, without tokens, control the instrument", "listen", cfg.Listen)
+		return nil
+	}
+	return fmt.Errorf("listen %s is not a loopback address: it needs TLS (--tls-cert and --tls-key), or --insecure to serve without TLS on purpose", cfg.Listen)
+}
+
+func isLoopback(host string) bool {
+	if host == "localhost" {
+		return true
+	}
+	ip := net.ParseIP(host)
+	return ip != nil && ip.IsLoopback()
+}

@@ -1,0 +1,227 @@
+package store
+
+import (
+	"bufio"
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+
+	goniodv1 "goniod/proto/goniod/v1"
+)
+
+// Appender appends points to one scan's points file. Not safe for concurrent use: the scan engine owns it.
+type Appender struct {
+	f     *os.File
+	table *goniodv1.PointTable
+	count int
+	size  int64
+	buf   []byte
+}
+
+// Recovered describes what opening a points file for append found.
+type Recovered struct {
+	// Points is the number of intact points.
+	Points int
+	// DroppedBytes is the size of a torn or damaged last line that was cut off (0 when the file was clean).
+	DroppedBytes int64
+}
+
+// OpenAppender opens a scan's points file for appending. It checks the file: a last line without its newline,
+// or one that does not parse as the next point, is torn by a crash and is cut off. Every earlier line must be
+// intact; if one is not, the file is left alone and an error is returned.
+func (s *Store) OpenAppender(id string) (*Appender, Recovered, error) {
+	path := s.PointsPath(id)
+	f, err := os.OpenFile(path, os.O_RDWR, 0)
+	if err != nil {
+		return nil, Recovered{}, fmt.Errorf("open points of %s: %w", id, err)
+	}
+	table, count, good, total, err := scanPoints(f)
+	if err != nil {
+		f.Close()
+		return nil, Recovered{}, fmt.Errorf("points of %s: %w", id, err)
+	}
+	rec := Recovered{Points: count, DroppedBytes: total - good}
+	if good < total {
+		if err := f.Truncate(good); err != nil {
+			f.Close()
+			return nil, rec, fmt.Errorf("cut torn line of %s: %w", id, err)
+		}
+		if err := f.Sync(); err != nil {
+			f.Close()
+			return nil, rec, fmt.Errorf("cut torn line of %s: %w", id, err)
+		}
+	}
+	if _, err := f.Seek(good, io.SeekStart); err != nil {
+		f.Close()
+		return nil, rec, err
+	}
+	return &Appender{f: f, table: table, count: count, size: good}, rec, nil
+}
+
+// scanPoints reads a points file from the start: its layout, the number of intact points, the offset just
+// after the last intact line, and the file size. Only the last line may be bad.
+func scanPoints(f *os.File) (table *goniodv1.PointTable, count int, good, total int64, err error) {
+	r := bufio.NewReaderSize(f, 1<<16)
+	header, err := r.ReadBytes('\n')
+	if err != nil {
+		return nil, 0, 0, 0, fmt.Errorf("no complete header line: %w", err)
+	}
+	table, err = goniodv1.ParsePointTable(string(header))
+	if err != nil {
+		return nil, 0, 0, 0, err
+	}
+	good = int64(len(header))
+	total = good
+	var bad error
+	for {
+		line, rerr := r.ReadBytes('\n')
+		total += int64(len(line))
+		if len(line) > 0 {
+			if bad != nil {
+				return nil, 0, 0, 0, fmt.Errorf("point %d is damaged and not the last line: %w", count, bad)
+			}
+			switch {
+			case line[len(line)-1] != '\n':
+				bad = errors.New("torn last line")
+			default:
+				p, derr := table.DecodeCSV(line)
+				switch {
+				case derr != nil:
+					bad = derr
+				case int(p.Index) != count:
+					bad = fmt.Errorf("line holds point %d, expected %d", p.Index, count)
+				default:
+					count++
+					good = total
+				}
+			}
+		}
+		if rerr == io.EOF {
+			return table, count, good, total, nil
+		}
+		if rerr != nil {
+			return nil, 0, 0, 0, rerr
+		}
+	}
+}
+
+// Count is the number of points in the file.
+func (a *Appender) Count() int { return a.count }
+
+// Table is the file's column layout.
+func (a *Appender) Table() *goniodv1.PointTable { return a.table }
+
+// Append writes points and fsyncs them; when it returns nil they are durable. On an error the file is cut back
+// to the last durable point, so nothing already stored is damaged.
+func (a *Appender) Append(points ...*goniodv1.Point) error {
+	a.buf = a.buf[:0]
+	for i, p := range points {
+		if int(p.Index) != a.count+i {
+			return fmt.Errorf("append point %d: expected index %d", p.Index, a.count+i)
+		}
+		a.buf = a.table.AppendCSV(a.buf, p)
+	}
+	if _, err := a.f.Write(a.buf); err != nil {
+		a.rollback()
+		return fmt.Errorf("write points: %w", err)
+	}
+	if err := a.f.Sync(); err != nil {
+		a.rollback()
+		return fmt.Errorf("sync points: %w", err)
+	}
+	a.count += len(points)
+	a.size += int64(len(a.buf))
+	return nil
+}
+
+func (a *Appender) rollback() {
+	_ = a.f.Truncate(a.size)
+	_, _ = a.f.Seek(a.size, io.SeekStart)
+}
+
+// Close closes the file.
+func (a *Appender) Close() error { return a.f.Close() }
+
+// ReadPoints calls fn for the points of a scan with from <= index < from+limit (limit 0: to the end), in
+// order, reading the file as a stream. A torn last line is skipped.
+func (s *Store) ReadPoints(ctx context.Context, id string, from, limit int, fn func(*goniodv1.Point) error) error {
+	f, err := os.Open(s.PointsPath(id))
+	if err != nil {
+		return fmt.Errorf("read points of %s: %w", id, err)
+	}
+	defer f.Close()
+	r := bufio.NewReaderSize(f, 1<<16)
+	header, err := r.ReadBytes('\n')
+	if err != nil {
+		return fmt.Errorf("points of %s: no header: %w", id, err)
+	}
+	table, err := goniodv1.ParsePointTable(string(header))
+	if err != nil {
+		return fmt.Errorf("points of %s: %w", id, err)
+	}
+	for i := 0; limit == 0 || i < from+limit; i++ {
+		line, err := r.ReadSlice('\n')
+		if errors.Is(err, bufio.ErrBufferFull) {
+			return fmt.Errorf("points of %s: line %d too long", id, i+2)
+		}
+		if err != nil {
+			return nil // EOF or a torn last line: the end of the durable points
+		}
+		if i < from {
+			continue
+		}
+		if i%256 == 0 && ctx.Err() != nil {
+			return ctx.Err()
+		}
+		p, err := table.DecodeCSV(line)
+		if err != nil {
+			return fmt.Errorf("points of %s, point %d: %w", id, i, err)
+		}
+		if err := fn(p); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// ReadTable returns a scan's points layout.
+func (s *Store) ReadTable(id string) (*goniodv1.PointTable, error) {
+	f, err := os.Open(s.PointsPath(id))
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	header, err := bufio.NewReader(f).ReadBytes('\n')
+	if err != nil {
+		return nil, fmt.Errorf("points of %s: no header: %w", id, err)
+	}
+	return goniodv1.ParsePointTable(string(header))
+}
+
+// CountPoints counts the complete lines of a scan's points file (a quick count; OpenAppender checks them).
+func (s *Store) CountPoints(id string) (int, error) {
+	f, err := os.Open(s.PointsPath(id))
+	if err != nil {
+		return 0, err
+	}
+	defer f.Close()
+	buf := make([]byte, 1<<16)
+	n := 0
+	for {
+		k, err := f.Read(buf)
+		n += bytes.Count(buf[:k], []byte{'\n'})
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return 0, err
+		}
+	}
+	if n == 0 {
+		return 0, nil
+	}
+	return n - 1, nil
+}

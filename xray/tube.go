@@ -1,0 +1,24 @@
+package xray
+
+import "math"
+
+// KramersContinuum is the thick-target bremsstrahlung photon spectrum by Kramers' law in Ebel's form
+// (Ebel, X-Ray Spectrometry 28, 255, 1999, valid 5–50 kV): photons per second, steradian, mA and keV at
+// photon energy e (keV) for tube voltage kV on an anode of atomic number z:
+// 1.35e9 · Z · (E0/E − 1)^x with x = 1.109 − 0.00435 Z + 0.00175 E0. Zero at and above E0 = eU.
+func KramersContinuum(z int, kV, e float64) float64 {
+	if e <= 0 || e >= kV {
+		return 0
+	}
+	x := 1.109 - 0.00435*float64(z) + 0.00175*kV
+	return 1.35e9 * float64(z) * math.Pow(kV/e-1, x)
+}
+
+// LineExcitation is the overvoltage factor of a characteristic line: (U/U_edge − 1)^1.67 above the edge,
+// zero below (Green & Cosslett, J. Phys. D 1, 425, 1968; exponent from memory).
+func LineExcitation(kV, edgeKeV float64) float64 {
+	if kV <= edgeKeV {
+		return 0
+	}
+	return math.Pow(kV/edgeKeV-1, 1.67)
+}
