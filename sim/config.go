@@ -81,7 +81,7 @@ func (c Config) validate() error {
 		return fmt.Errorf("sim crystal: %w", err)
 	}
 	checks := []struct {
-		name     string
+		name      string
 		v, lo, hi float64
 	}{
 		{"speed", c.Speed, 1e-3, 1e7},
