@@ -76,7 +76,7 @@ func New(cfg Config, clock Clock) (*Instrument, error) {
 		motor:    map[string]float64{AxisTheta: 0, AxisTwoTheta: 0},
 		kv:       20,
 		ma:       0.5,
-		lastHost: clock.Now(),
+		lastHost: time.Now(),
 		rng:      rand.New(rand.NewPCG(uint64(cfg.Seed), 0x676f6e696f64)),
 		halted:   make(chan struct{}),
 	}
@@ -137,15 +137,17 @@ func (in *Instrument) touch() {
 	in.mu.Lock()
 	defer in.mu.Unlock()
 	in.applySafetyLocked()
-	in.lastHost = in.clock.Now()
+	in.lastHost = time.Now()
 }
 
-// applySafetyLocked drops high voltage when the door is open or the host was silent too long.
+// applySafetyLocked drops high voltage when the door is open or the host was silent too long. Host silence is
+// measured in wall time: it is a property of the host, not of the simulated physics, and a fast simulation must
+// not turn a 2 ms fsync into a 20 s silence.
 func (in *Instrument) applySafetyLocked() {
 	if in.door {
 		in.hv = false
 	}
-	if in.cfg.Watchdog > 0 && in.clock.Now().Sub(in.lastHost) > in.cfg.Watchdog {
+	if in.cfg.Watchdog > 0 && time.Since(in.lastHost) > in.cfg.Watchdog {
 		in.hv = false
 	}
 }
@@ -302,14 +304,7 @@ func (in *Instrument) WatchdogPeriod() time.Duration {
 	if in.cfg.Watchdog <= 0 {
 		return time.Minute
 	}
-	return time.Duration(float64(in.cfg.Watchdog) / 3 / in.clockSpeed())
-}
-
-func (in *Instrument) clockSpeed() float64 {
-	if c, ok := in.clock.(*ScaledClock); ok {
-		return c.Speed()
-	}
-	return 1
+	return in.cfg.Watchdog / 3
 }
 
 // Count gates the counter for gate (simulated time) and returns Poisson counts after dead-time losses.
