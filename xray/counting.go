@@ -81,3 +81,43 @@ func TrueRate(observed Rate, tau float64, model DeadTimeModel) (Rate, error) {
 	}
 	return Rate{CPS: m / loss, Err: observed.Err / (loss * loss)}, nil
 }
+
+// ObservedCountMoments is the mean and variance of the number of counts a counter with dead time tau
+// (seconds) records in t seconds from Poisson events at trueRate, for long gates (many counts): the
+// recorded events form a renewal process, so mean = t/μ and variance = t·σ²/μ³, with μ and σ² the mean and
+// variance of the interval between recorded events (Cox, Renewal Theory, 1962, ch. 6). Non-paralyzable:
+// μ = τ + 1/n, σ² = 1/n², so variance/mean = 1/(1 + nτ)². Paralyzable: an interval is a run of gaps shorter
+// than τ closed by one longer gap, μ = e^(nτ)/n.
+func ObservedCountMoments(trueRate, tau, t float64, model DeadTimeModel) (mean, variance float64) {
+	n := trueRate
+	if n <= 0 || t <= 0 {
+		return 0, 0
+	}
+	if tau <= 0 {
+		return n * t, n * t
+	}
+	var mu, s2 float64
+	if model == Paralyzable {
+		mu, s2 = paralyzableInterval(n, tau)
+	} else {
+		mu, s2 = tau+1/n, 1/(n*n)
+	}
+	return t / mu, t * s2 / (mu * mu * mu)
+}
+
+// paralyzableInterval is the mean and variance of the interval between recorded events of a paralyzable
+// counter. With gaps G ~ Exp(n) and p = P(G > τ) = e^(−nτ): the interval is J gaps S shorter than τ
+// (J geometric, mean (1−p)/p, variance (1−p)/p²) and one gap L = τ + Exp(n).
+func paralyzableInterval(n, tau float64) (mean, variance float64) {
+	x := n * tau
+	em1 := math.Expm1(x) // p/(1−p) = 1/(e^x − 1)
+	if em1 < 1e-9 {
+		return 1 / n, 1 / (n * n)
+	}
+	p := math.Exp(-x)
+	eS := 1/n - tau/em1
+	eS2 := 2/(n*n) - (tau*tau+2*tau/n)/em1
+	varS := math.Max(eS2-eS*eS, 0)
+	eJ, varJ := (1-p)/p, (1-p)/(p*p)
+	return eJ*eS + tau + 1/n, eJ*varS + varJ*eS*eS + 1/(n*n)
+}

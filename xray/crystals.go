@@ -15,6 +15,31 @@ type Crystal struct {
 	DNM float64
 	// Source of the value.
 	Source string
+	// Lattice type, which decides the orders that reflect.
+	Lattice Lattice
+}
+
+// Lattice says which higher orders of a crystal's reflection the structure factor allows.
+type Lattice int
+
+const (
+	// AllOrders: every order n of the reflection is allowed (rock salt (h00) with h even, layered (00l)).
+	AllOrders Lattice = iota
+	// Diamond: the diamond structure's (111) reflection, whose orders n ≡ 2 (mod 4), e.g. (222), are
+	// forbidden (kinematic structure factor of the diamond lattice, Warren, X-ray Diffraction, 1969).
+	Diamond
+)
+
+// OrderAllowed reports whether the crystal reflects in order n (n ≥ 1) by its structure factor. Forbidden
+// orders can appear weakly through multiple diffraction; a simulator may ignore that.
+func (c Crystal) OrderAllowed(n int) bool {
+	if n < 1 {
+		return false
+	}
+	if c.Lattice == Diamond {
+		return n%4 != 2
+	}
+	return true
 }
 
 // Room-temperature d-spacings. Sources: Wyckoff, Crystal Structures (1965), as carried by xraylib's
@@ -25,8 +50,8 @@ var crystals = []Crystal{
 	{Name: "NaCl(200)", Aliases: []string{"nacl", "nacl200"}, DNM: 0.563978 / 2, Source: "Wyckoff via xraylib"},
 	{Name: "KCl(200)", Aliases: []string{"kcl", "kcl200"}, DNM: 0.629294 / 2, Source: "Wyckoff via xraylib"},
 	{Name: "KBr(200)", Aliases: []string{"kbr", "kbr200"}, DNM: 0.6600 / 2, Source: "from memory"},
-	{Name: "Si(111)", Aliases: []string{"si", "si111"}, DNM: 0.3135601, Source: "CODATA 2018"},
-	{Name: "Ge(111)", Aliases: []string{"ge", "ge111"}, DNM: 0.3266273, Source: "Wyckoff via xraylib"},
+	{Name: "Si(111)", Aliases: []string{"si", "si111"}, DNM: 0.3135601, Source: "CODATA 2018", Lattice: Diamond},
+	{Name: "Ge(111)", Aliases: []string{"ge", "ge111"}, DNM: 0.3266273, Source: "Wyckoff via xraylib", Lattice: Diamond},
 	{Name: "graphite(002)", Aliases: []string{"graphite", "graphite002", "c002", "hopg"}, DNM: 0.3348, Source: "Wyckoff via xraylib"},
 	{Name: "mica(002)", Aliases: []string{"mica", "mica002", "muscovite"}, DNM: 1.00075, Source: "Wyckoff via xraylib"},
 }

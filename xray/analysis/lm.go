@@ -207,27 +207,32 @@ func (w *lm) normal(p []float64) float64 {
 	return s
 }
 
-// solveSPD solves A x = b for a symmetric positive definite A (row-major n×n) by Cholesky; false when A is
-// not positive definite.
+// solveSPD solves A x = b for a symmetric positive definite A (row-major n×n) by Cholesky after scaling A to
+// unit diagonal, so that parameters of very different magnitudes do not spoil the factorisation; false when A
+// is not positive definite.
 func solveSPD(a, b, x []float64, n int) bool {
-	var chol mat.Cholesky
-	if !chol.Factorize(mat.NewSymDense(n, append([]float64(nil), a...))) {
+	chol, d, ok := scaledCholesky(a, n)
+	if !ok {
 		return false
 	}
+	rhs := mat.NewVecDense(n, nil)
+	for i := range n {
+		rhs.SetVec(i, b[i]*d[i])
+	}
 	var v mat.VecDense
-	if err := chol.SolveVecTo(&v, mat.NewVecDense(n, append([]float64(nil), b...))); err != nil {
+	if err := chol.SolveVecTo(&v, rhs); err != nil {
 		return false
 	}
 	for i := range n {
-		x[i] = v.AtVec(i)
+		x[i] = v.AtVec(i) * d[i]
 	}
 	return true
 }
 
 // invertSPD writes the inverse of the symmetric positive definite A into inv; false when A is singular.
 func invertSPD(a, inv []float64, n int) bool {
-	var chol mat.Cholesky
-	if !chol.Factorize(mat.NewSymDense(n, append([]float64(nil), a...))) {
+	chol, d, ok := scaledCholesky(a, n)
+	if !ok {
 		return false
 	}
 	var s mat.SymDense
@@ -236,11 +241,33 @@ func invertSPD(a, inv []float64, n int) bool {
 	}
 	for i := range n {
 		for j := range n {
-			inv[i*n+j] = s.At(i, j)
+			inv[i*n+j] = s.At(i, j) * d[i] * d[j]
 		}
 		if !(inv[i*n+i] > 0) || math.IsInf(inv[i*n+i], 0) {
 			return false
 		}
 	}
 	return true
+}
+
+// scaledCholesky factorises D A D with D = diag(A)^−½.
+func scaledCholesky(a []float64, n int) (*mat.Cholesky, []float64, bool) {
+	d := make([]float64, n)
+	for i := range n {
+		if !(a[i*n+i] > 0) {
+			return nil, nil, false
+		}
+		d[i] = 1 / math.Sqrt(a[i*n+i])
+	}
+	sc := make([]float64, n*n)
+	for i := range n {
+		for j := range n {
+			sc[i*n+j] = a[i*n+j] * d[i] * d[j]
+		}
+	}
+	var chol mat.Cholesky
+	if !chol.Factorize(mat.NewSymDense(n, sc)) {
+		return nil, nil, false
+	}
+	return &chol, d, true
 }

@@ -125,8 +125,8 @@ func (sr *searcher) excess(i int) float64 {
 // run computes the significance of every point with masking passes: points in significant regions (widened
 // by the peak width) are left out of the background of later passes.
 func (sr *searcher) run(k float64, widthPts int) {
-	maskZ := math.Min(3, k)
-	screen := 0.8 * maskZ
+	maskZ := math.Max(3, k)
+	screen := 0.8 * k
 	for pass := range 3 {
 		sr.sums()
 		for i := range sr.s.Len() {
