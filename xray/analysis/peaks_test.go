@@ -111,53 +111,65 @@ func TestPeakCentresShiftWithScan(t *testing.T) {
 	}
 }
 
-// TestPeakWidthsIgnoreCountScale is a property: multiplying every count by a factor (a longer dwell, a
-// brighter tube) leaves each fitted FWHM and centre unchanged and scales the area.
+// TestPeakWidthsIgnoreCountScale is a property: scaling the rates leaves each fitted FWHM and centre unchanged
+// and scales the area. Counts multiplied by a factor are no longer Poisson-distributed, so the check runs on
+// noise-free scans for scaled counts, and on noisy ones for a scaled dwell (same counts, other rates).
 func TestPeakWidthsIgnoreCountScale(t *testing.T) {
-	s := cuOnLiF(42, 52, 0.01).scan(t, rand.New(rand.NewPCG(2, 2)))
-	base, err := FindPeaks(s, PeakOptions{})
-	if err != nil || len(base.Peaks) == 0 {
-		t.Fatalf("%+v %v", base, err)
-	}
-	for _, k := range []float64{3, 10, 100} {
-		c := make([]float64, s.Len())
-		for i := range c {
-			c[i] = k * s.Counts[i]
+	sy := cuOnLiF(42, 52, 0.01)
+	for _, noisy := range []bool{false, true} {
+		var rng *rand.Rand
+		if noisy {
+			rng = rand.New(rand.NewPCG(2, 2))
 		}
-		scaled, err := NewScan(s.X, c, s.Dwell, s.DeadTime)
-		if err != nil {
-			t.Fatal(err)
+		s := sy.scan(t, rng)
+		base, err := FindPeaks(s, PeakOptions{})
+		if err != nil || len(base.Peaks) != 3 {
+			t.Fatalf("%+v %v", base, err)
 		}
-		got, err := FindPeaks(scaled, PeakOptions{})
-		if err != nil || len(got.Peaks) < len(base.Peaks) {
-			t.Fatalf("×%g: %d peaks, want at least %d (%v)", k, len(got.Peaks), len(base.Peaks), err)
-		}
-		for _, b := range base.Peaks {
-			p, ok := match(got.Peaks, b.Centre.Value, b.FWHM.Value/2)
-			// Poisson weights floor at minVarCounts, the only place the scale enters: agreement to a
-			// small fraction of the standard error.
-			if !ok || math.Abs(p.FWHM.Value-b.FWHM.Value) > 0.05*b.FWHM.Err || math.Abs(p.Centre.Value-b.Centre.Value) > 0.05*b.Centre.Err ||
-				math.Abs(p.Area.Value/k-b.Area.Value) > 0.05*b.Area.Err {
-				t.Errorf("×%g: peak at %.5f: FWHM %.7f centre %.7f area/k %.5g; unscaled %.7f %.7f %.5g",
-					k, b.Centre.Value, p.FWHM.Value, p.Centre.Value, p.Area.Value/k, b.FWHM.Value, b.Centre.Value, b.Area.Value)
+		for _, k := range []float64{3, 10, 100} {
+			c, d := make([]float64, s.Len()), make([]float64, s.Len())
+			for i := range c {
+				c[i], d[i] = k*s.Counts[i], s.Dwell[i]
+				if noisy {
+					c[i], d[i] = s.Counts[i], s.Dwell[i]/k
+				}
+			}
+			scaled, err := NewScan(s.X, c, d, s.DeadTime)
+			if err != nil {
+				t.Fatal(err)
+			}
+			got, err := FindPeaks(scaled, PeakOptions{})
+			if err != nil || len(got.Peaks) != len(base.Peaks) {
+				t.Fatalf("noisy %v, ×%g: %d peaks, want %d (%v)", noisy, k, len(got.Peaks), len(base.Peaks), err)
+			}
+			for n, b := range base.Peaks {
+				p := got.Peaks[n]
+				// Poisson weights floor at minVarCounts, the only place the scale can enter: agreement to a
+				// small fraction of the standard error.
+				if math.Abs(p.FWHM.Value-b.FWHM.Value) > 1e-3*b.FWHM.Err || math.Abs(p.Centre.Value-b.Centre.Value) > 1e-3*b.Centre.Err ||
+					math.Abs(p.Area.Value/k-b.Area.Value) > 1e-3*b.Area.Err {
+					t.Errorf("noisy %v, ×%g: peak at %.5f: FWHM %.7f centre %.7f area/k %.5g; unscaled %.7f %.7f %.5g",
+						noisy, k, b.Centre.Value, p.FWHM.Value, p.Centre.Value, p.Area.Value/k, b.FWHM.Value, b.Centre.Value, b.Area.Value)
+				}
 			}
 		}
 	}
 }
 
-// TestFindsWeakThirdOrder: Mo lines on LiF(200) in orders 1–3 with the higher orders much weaker (1/n² of the
-// first, a choice of this test); the third-order Kα1, Kα2 and Kβ1, at 6–15σ, are all found at 5σ, with no
+// TestFindsWeakThirdOrder: Mo lines on LiF(200) in orders 1–3, each order weaker by 1/n³ (a choice of this
+// test; NIST SRD 128 energies, Kα2/Kα1 = 0.524 and Kβ/Kα = 0.168 from Scofield via Krause, ORNL-5399), so that
+// the third-order Kβ1 stands only about 7σ above the background: all of orders 2 and 3 are found at 5σ, with no
 // spurious peaks.
 func TestFindsWeakThirdOrder(t *testing.T) {
-	sy := synth{from: 8, to: 34, step: 0.01, dwell: 1, bg0: 3, bg1: 0.05}
-	for n := 1; n <= 3; n++ {
+	sy := synth{from: 15, to: 34, step: 0.01, dwell: 1, bg0: 3, bg1: 0.05}
+	for n := 2; n <= 3; n++ {
 		for _, l := range []struct{ keV, rel float64 }{{refMoKa1, 1}, {refMoKa2, 0.524}, {refMoKb1, 0.168 * 1.524}} {
-			sy.lines = append(sy.lines, synthLine{centre: braggDeg(l.keV, refLiF200, n), fwhm: 0.08,
-				area: 2 * l.rel / float64(n*n*n*n)})
+			sy.lines = append(sy.lines, synthLine{centre: braggDeg(l.keV, refLiF200, n), fwhm: 0.06,
+				area: 100 * l.rel / float64(n*n*n)})
 		}
 	}
 	rng := rand.New(rand.NewPCG(31, 32))
-	for run := range 20 {
+	for run := range 50 {
 		res, err := FindPeaks(sy.scan(t, rng), PeakOptions{})
 		if err != nil {
 			t.Fatal(err)

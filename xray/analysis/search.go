@@ -25,6 +25,7 @@ type searcher struct {
 	s       *Scan
 	half, h int
 	mask    []bool
+	flat    bool // background by the mean only
 	x0      float64
 	// Prefix sums over unmasked points (weights t = dwell, X = x − x0): Σt, ΣtX, ΣtX², ΣN, ΣNX, count.
 	cT, cTX, cTXX, cN, cNX, cK []float64
@@ -75,8 +76,9 @@ func (sr *searcher) test(i int, screen float64) bool {
 	a, b := max(i-sr.half, 0), min(i+sr.half+1, n)
 	need := float64(max(minOff, 2*(b-a)))
 	var t, tx, txx, cn, cnx, k float64
+	var lo, hi int
 	for h := sr.h; ; h *= 2 {
-		lo, hi := max(i-h, 0), min(i+h+1, n)
+		lo, hi = max(i-h, 0), min(i+h+1, n)
 		t, tx, txx, cn, cnx, k = sr.offSums(lo, hi, a, b)
 		if k >= need {
 			break
@@ -86,17 +88,22 @@ func (sr *searcher) test(i int, screen float64) bool {
 			return false
 		}
 	}
+	// A straight line when background points lie on both sides (interpolation); the mean otherwise, since
+	// extrapolating a line fitted to one side runs away on the flank of a peak. The first pass, before any
+	// peak is masked, uses the mean everywhere: a line through a peak's flank can dip under the background
+	// beside it, while the mean only rises (fewer detections, never spurious ones).
+	rate, slope, teff := cn/t, 0.0, t
+	if !sr.flat && sr.cK[a]-sr.cK[lo] >= 2 && sr.cK[hi]-sr.cK[b] >= 2 {
+		Xi := sr.s.X[i] - sr.x0
+		s0, s1, s2 := t, tx-Xi*t, txx-2*Xi*tx+Xi*Xi*t
+		sn, snx := cn, cnx-Xi*cn
+		if det := s0*s2 - s1*s1; det > 1e-9*s0*s2 {
+			if r := (sn*s2 - snx*s1) / det; r >= 0 {
+				rate, slope, teff = r, (s0*snx-s1*sn)/det, det/s2
+			}
+		}
+	}
 	Xi := sr.s.X[i] - sr.x0
-	s0, s1, s2 := t, tx-Xi*t, txx-2*Xi*tx+Xi*Xi*t
-	sn, snx := cn, cnx-Xi*cn
-	det := s0*s2 - s1*s1
-	rate, slope, teff := sn/s0, 0.0, s0
-	if det > 1e-9*s0*s2 {
-		rate, slope, teff = (sn*s2-snx*s1)/det, (s0*snx-s1*sn)/det, det/s2
-	}
-	if rate < 0 {
-		rate, slope = 0, 0
-	}
 	tOn := sr.pT[b] - sr.pT[a]
 	nOn := sr.pN[b] - sr.pN[a]
 	bOn := math.Max(rate*tOn+slope*(sr.pTX[b]-sr.pTX[a]-Xi*tOn), 0)
@@ -110,15 +117,15 @@ func (sr *searcher) test(i int, screen float64) bool {
 	return true
 }
 
-// window returns the on-window counts and exposure at i.
-func (sr *searcher) window(i int) (counts, exposure float64) {
-	a, b := max(i-sr.half, 0), min(i+sr.half+1, sr.s.Len())
+// window returns the counts and exposure of the points within half of i.
+func (sr *searcher) window(i, half int) (counts, exposure float64) {
+	a, b := max(i-half, 0), min(i+half+1, sr.s.Len())
 	return sr.pN[b] - sr.pN[a], sr.pT[b] - sr.pT[a]
 }
 
-// excess is the observed rate above background in the on-window at i.
-func (sr *searcher) excess(i int) float64 {
-	c, t := sr.window(i)
+// excess is the observed rate above background in a window of half-width half at i.
+func (sr *searcher) excess(i, half int) float64 {
+	c, t := sr.window(i, half)
 	return c/t - sr.bg[i]
 }
 
@@ -127,23 +134,30 @@ func (sr *searcher) excess(i int) float64 {
 func (sr *searcher) run(k float64, widthPts int) {
 	maskZ := math.Max(3, k)
 	screen := 0.8 * k
+	tested := make([]bool, sr.s.Len())
 	for pass := range 3 {
+		sr.flat = pass == 0
 		sr.sums()
 		for i := range sr.s.Len() {
-			sr.test(i, screen)
+			tested[i] = sr.test(i, screen)
 		}
 		if pass == 2 {
 			break
 		}
-		clear(sr.mask)
+		// Points that could not be tested keep their mask.
 		grow := sr.half + widthPts
+		next := make([]bool, len(sr.mask))
+		for i := range next {
+			next[i] = sr.mask[i] && !tested[i]
+		}
 		for i, z := range sr.z {
 			if z >= maskZ {
 				for j := max(i-grow, 0); j <= min(i+grow, len(sr.mask)-1); j++ {
-					sr.mask[j] = true
+					next[j] = true
 				}
 			}
 		}
+		sr.mask = next
 	}
 }
 
@@ -162,7 +176,7 @@ func (sr *searcher) candidates(k float64) []candidate {
 			j++
 		}
 		for _, m := range sr.prominent(i, j, k) {
-			out = append(out, candidate{i: m, z: sr.z[m], bg: sr.bg[m], excess: sr.excess(m), run: run})
+			out = append(out, candidate{i: m, z: sr.z[m], bg: sr.bg[m], excess: sr.excess(m, sr.half/2), run: run})
 		}
 		run++
 		i = j
@@ -170,11 +184,13 @@ func (sr *searcher) candidates(k float64) []candidate {
 	return out
 }
 
-// prominent picks the maxima of the run [lo, hi).
+// prominent picks the maxima of the run [lo, hi). Maxima and valleys are compared over windows half as wide
+// as the detection window, so that a doublet a little wider apart than its lines stays two peaks.
 func (sr *searcher) prominent(lo, hi int, k float64) []int {
+	hm := sr.half / 2
 	ex := make([]float64, hi-lo)
 	for i := range ex {
-		ex[i] = sr.excess(lo + i)
+		ex[i] = sr.excess(lo+i, hm)
 	}
 	var keep []int
 	for i := range ex {
@@ -201,8 +217,8 @@ func (sr *searcher) prominent(lo, hi int, k float64) []int {
 			keep = append(keep, lo+i)
 			continue
 		}
-		nj, tj := sr.window(lo + i)
-		nv, tv := sr.window(lo + col)
+		nj, tj := sr.window(lo+i, hm)
+		nv, tv := sr.window(lo+col, hm)
 		if onOffZ(nj, nv*tj/tv, tj/tv) >= k {
 			keep = append(keep, lo+i)
 		}
