@@ -58,3 +58,39 @@ func (c *ScaledClock) Sleep(ctx context.Context, d time.Duration) error {
 		return nil
 	}
 }
+
+// ManualClock is simulated time that moves only when told: Sleep advances it by d at once, Advance moves it
+// on. Tests use it to run long dwells, ramps and watchdog times in no wall time, exactly.
+type ManualClock struct {
+	mu  sync.Mutex
+	now time.Time
+}
+
+// NewManualClock returns a clock standing at start.
+func NewManualClock(start time.Time) *ManualClock { return &ManualClock{now: start} }
+
+// Now returns the simulated time.
+func (c *ManualClock) Now() time.Time {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return c.now
+}
+
+// Sleep advances the clock by d and returns at once, unless ctx has already ended.
+func (c *ManualClock) Sleep(ctx context.Context, d time.Duration) error {
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	c.Advance(d)
+	return nil
+}
+
+// Advance moves the clock on by d (ignored when d ≤ 0).
+func (c *ManualClock) Advance(d time.Duration) {
+	if d <= 0 {
+		return
+	}
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	c.now = c.now.Add(d)
+}

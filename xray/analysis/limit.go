@@ -54,7 +54,7 @@ func DuaneHunt(s *Scan, dNM, kV float64) (Limit, error) {
 		return Limit{}, fmt.Errorf("%w: %d points below the expected limit λ ≈ %.4f nm (θ ≈ %.2f°); start the scan at a smaller angle",
 			ErrData, lo, guess, xray.Degrees(math.Asin(guess/(2*dNM))))
 	}
-	if hi-lo < 5 {
+	if hi-lo < 5 || lam(s.X[hi]) < (1+onsetReach/2)*guess {
 		return Limit{}, fmt.Errorf("%w: %d points on the rise above λ ≈ %.4f nm; extend the scan to θ ≈ %.2f°",
 			ErrData, max(hi-lo, 0), guess, xray.Degrees(math.Asin(math.Min((1+onsetReach)*guess/(2*dNM), 1))))
 	}

@@ -90,7 +90,7 @@ func groups(s *Scan, cs []candidate, shape Shape) [][]candidate {
 	for n, c := range cs {
 		if n > 0 {
 			p := cs[n-1]
-			reach := shape.halfWindow() * 0.5 * (p.fwhm + c.fwhm)
+			reach := shape.halfWindow() * (p.fwhm + c.fwhm)
 			if p.run == c.run || s.X[c.i]-s.X[p.i] < reach {
 				out[len(out)-1] = append(out[len(out)-1], c)
 				continue

@@ -28,6 +28,7 @@ type Scan struct {
 	// Saturated counts the points dropped because their observed rate is beyond what the dead-time model can
 	// record.
 	Saturated int
+	step      float64
 }
 
 // MinPoints is the fewest points an analysis accepts.
@@ -75,14 +76,6 @@ func NewScan(x, counts, dwell []float64, dt DeadTime) (*Scan, error) {
 	if s.X[len(s.X)-1] == s.X[0] {
 		return nil, fmt.Errorf("%w: the angle does not change over the scan", ErrData)
 	}
-	return s, nil
-}
-
-// Len is the number of points.
-func (s *Scan) Len() int { return len(s.X) }
-
-// Step is the median spacing of the angles, degrees.
-func (s *Scan) Step() float64 {
 	d := make([]float64, 0, len(s.X)-1)
 	for i := 1; i < len(s.X); i++ {
 		if dx := s.X[i] - s.X[i-1]; dx > 0 {
@@ -90,8 +83,15 @@ func (s *Scan) Step() float64 {
 		}
 	}
 	sort.Float64s(d)
-	return d[len(d)/2]
+	s.step = d[len(d)/2]
+	return s, nil
 }
+
+// Len is the number of points.
+func (s *Scan) Len() int { return len(s.X) }
+
+// Step is the median spacing of the angles, degrees.
+func (s *Scan) Step() float64 { return s.step }
 
 // observed converts a true rate to the rate the counter records.
 func (s *Scan) observed(trueRate float64) float64 {
