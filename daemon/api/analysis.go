@@ -3,15 +3,37 @@ package api
 import (
 	"context"
 	"fmt"
+	"time"
 
+	"goniod/daemon/scan"
 	"goniod/daemon/validate"
 	goniodv1 "goniod/proto/goniod/v1"
 	"goniod/xray"
 )
 
-// AnalysisService implements goniod.v1.Analysis.
+// ScanReader gives the analysis stored scans (the engine).
+type ScanReader interface {
+	Get(id string) (scan.Record, error)
+	ReadPoints(ctx context.Context, id string, from, limit int, fn func(*goniodv1.Point) error) error
+}
+
+// ResultStore keeps analysis results beside their scans (the store).
+type ResultStore interface {
+	SaveResult(id, kind string, b []byte) error
+	LoadResult(id, kind string) ([]byte, error)
+}
+
+// AnalysisService implements goniod.v1.Analysis: conversions, and the analyses of package xray/analysis on
+// stored scans or inline points, with results saved beside the scan on request.
 type AnalysisService struct {
 	goniodv1.UnimplementedAnalysisServer
+	// Scans and Results may be nil: then only inline points can be analysed and nothing saved.
+	Scans   ScanReader
+	Results ResultStore
+	// CrystalAxis names the axis that turns the analyzer crystal (default "theta"): Bragg analyses use it.
+	CrystalAxis string
+	// Now is the clock of saved results (default time.Now).
+	Now func() time.Time
 }
 
 var _ goniodv1.AnalysisServer = (*AnalysisService)(nil)

@@ -126,7 +126,7 @@ func Run(ctx context.Context, o Options) error {
 	gs := grpc.NewServer(sopts...)
 	goniodv1.RegisterScansServer(gs, &api.ScanService{Engine: eng})
 	goniodv1.RegisterInstrumentServer(gs, &api.InstrumentService{Engine: eng, Controller: ctl, Version: o.Version})
-	goniodv1.RegisterAnalysisServer(gs, &api.AnalysisService{})
+	goniodv1.RegisterAnalysisServer(gs, &api.AnalysisService{Scans: eng, Results: st, CrystalAxis: icfg.CrystalAxis()})
 	hs := health.NewServer()
 	healthpb.RegisterHealthServer(gs, hs)
 	reflection.Register(gs)
