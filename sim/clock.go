@@ -40,6 +40,10 @@ func (c *ScaledClock) Now() time.Time {
 	return c.sim0.Add(time.Duration(float64(time.Since(c.wall0)) * c.speed))
 }
 
+// hostNow is the time on the host's side of the link, by which its silence is measured: wall time, since a
+// fast simulation must not turn a 2 ms pause of the host into a 20 s silence.
+func (c *ScaledClock) hostNow() time.Time { return time.Now() }
+
 // Sleep waits d/speed of wall time.
 func (c *ScaledClock) Sleep(ctx context.Context, d time.Duration) error {
 	if d <= 0 {
@@ -84,6 +88,9 @@ func (c *ManualClock) Sleep(ctx context.Context, d time.Duration) error {
 	c.Advance(d)
 	return nil
 }
+
+// hostNow is the host's time: with no wall clock behind it, the manual clock's own time.
+func (c *ManualClock) hostNow() time.Time { return c.Now() }
 
 // Advance moves the clock on by d (ignored when d ≤ 0).
 func (c *ManualClock) Advance(d time.Duration) {

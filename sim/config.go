@@ -36,7 +36,9 @@ type Config struct {
 	// Brightness of the unit relative to the calibrated one (default 1); raise it to drive the counter into
 	// dead-time saturation.
 	IntensityScale float64 `yaml:"intensity_scale"`
-	// Host watchdog: high voltage goes off when the host is silent this long (default 10 s; negative: off).
+	// Host watchdog: high voltage goes off when the host is silent this long (default 10 s; negative: off). It is
+	// host (wall) time: a fast simulation does not shorten it. The host counts as present while one of its
+	// commands (a move, a count) runs.
 	Watchdog time.Duration `yaml:"watchdog"`
 	// Tube rating (defaults 35 kV, 1 mA, 35 W).
 	MaxKV     float64 `yaml:"max_kv"`

@@ -18,7 +18,7 @@ type State struct {
 	OutputKV, OutputMA float64
 	// DoorOpen is the enclosure interlock: true when open.
 	DoorOpen bool
-	// HostSilentFor is how long the host has been silent (zero while one of its commands runs).
+	// HostSilentFor is how long the host has been silent, in host time (zero while one of its commands runs).
 	HostSilentFor time.Duration
 	// OffReason says why high voltage last went off without being asked: "interlock", "watchdog", "halt",
 	// "trip", or "" when it never did.
@@ -51,7 +51,7 @@ func (in *Instrument) State() State {
 		s.Moving[name] = a.move != nil && now.Sub(a.move.start) < a.move.dur
 	}
 	if in.busy == 0 {
-		s.HostSilentFor = now.Sub(in.hostSeen)
+		s.HostSilentFor = in.hostNow().Sub(in.hostSeen)
 	}
 	return s
 }

@@ -36,10 +36,10 @@ type Instrument struct {
 	mu       sync.Mutex
 	gonio    goniometer
 	tube     *tube
-	door     bool // true when open
-	hostSeen time.Time
-	busy     int    // host commands in progress: the host is not silent while one runs
-	offWhy   string // why high voltage last went off without being asked
+	door     bool      // true when open
+	hostSeen time.Time // host time (see hostNow) of the host's last command
+	busy     int       // host commands in progress: the host is not silent while one runs
+	offWhy   string    // why high voltage last went off without being asked
 	rng      *rand.Rand
 	halt     context.Context // cancelled by Halt to abort moves and counts in progress
 	haltNow  context.CancelFunc
@@ -85,17 +85,17 @@ func New(cfg Config, clock Clock) (*Instrument, error) {
 	}
 	now := clock.Now()
 	in := &Instrument{
-		cfg:      cfg,
-		clock:    clock,
-		anode:    anode,
-		crystal:  crystal,
-		counter:  geiger{tau: cfg.DeadTime.Seconds(), model: deadModel},
-		model:    newModel(anode, crystal, specimenOf(crystal), cfg.MosaicFWHMDeg, cfg.DivergenceFWHMDeg, cfg.SlitDeg, cfg.BackgroundCPS, cfg.IntensityScale),
-		gonio:    newGoniometer(cfg),
-		tube:     newTube(now, initialKV, initialMA, slewKV, slewMA),
-		hostSeen: now,
-		rng:      rand.New(rand.NewPCG(uint64(cfg.Seed), 0x676f6e696f64)),
+		cfg:     cfg,
+		clock:   clock,
+		anode:   anode,
+		crystal: crystal,
+		counter: geiger{tau: cfg.DeadTime.Seconds(), model: deadModel},
+		model:   newModel(anode, crystal, specimenOf(crystal), cfg.MosaicFWHMDeg, cfg.DivergenceFWHMDeg, cfg.SlitDeg, cfg.BackgroundCPS, cfg.IntensityScale),
+		gonio:   newGoniometer(cfg),
+		tube:    newTube(now, initialKV, initialMA, slewKV, slewMA),
+		rng:     rand.New(rand.NewPCG(uint64(cfg.Seed), 0x676f6e696f64)),
 	}
+	in.hostSeen = in.hostNow()
 	in.halt, in.haltNow = context.WithCancel(context.Background())
 	return in, nil
 }
@@ -148,33 +148,41 @@ func (in *Instrument) Halt() error {
 // Close does nothing: the simulator holds no resources.
 func (in *Instrument) Close() error { return nil }
 
+// hostNow is the time by which the host's silence is measured: wall time for a ScaledClock (host silence is
+// a property of the host, not of the simulated physics), the clock's own time for a ManualClock.
+func (in *Instrument) hostNow() time.Time {
+	if c, ok := in.clock.(interface{ hostNow() time.Time }); ok {
+		return c.hostNow()
+	}
+	return time.Now()
+}
+
 // touch records a host command that completes at once.
 func (in *Instrument) touch() {
 	in.mu.Lock()
 	defer in.mu.Unlock()
-	now := in.clock.Now()
-	in.applySafetyLocked(now)
-	in.hostSeen = now
+	in.applySafetyLocked(in.clock.Now())
+	in.hostSeen = in.hostNow()
 }
 
 // begin records the start of a host command that takes time; the returned func records its end.
 func (in *Instrument) begin() (end func()) {
 	in.mu.Lock()
 	defer in.mu.Unlock()
-	now := in.clock.Now()
-	in.applySafetyLocked(now)
-	in.hostSeen = now
+	in.applySafetyLocked(in.clock.Now())
+	in.hostSeen = in.hostNow()
 	in.busy++
 	return func() {
 		in.mu.Lock()
 		defer in.mu.Unlock()
 		in.busy--
-		in.hostSeen = in.clock.Now()
+		in.hostSeen = in.hostNow()
 	}
 }
 
-// applySafetyLocked drops high voltage when the door is open or the host has been silent longer than the
-// watchdog time; the watchdog trip is dated to the instant the time ran out.
+// applySafetyLocked drops high voltage, at simulated time now, when the door is open or the host has been
+// silent longer than the watchdog time. It runs before every host command and every State, so a trip is seen
+// before anything that depends on the tube.
 func (in *Instrument) applySafetyLocked(now time.Time) {
 	if !in.tube.setpoint().on {
 		return
@@ -183,10 +191,8 @@ func (in *Instrument) applySafetyLocked(now time.Time) {
 		in.switchOffLocked(now, "interlock")
 		return
 	}
-	if in.cfg.Watchdog > 0 && in.busy == 0 {
-		if expiry := in.hostSeen.Add(in.cfg.Watchdog); now.After(expiry) {
-			in.switchOffLocked(expiry, "watchdog")
-		}
+	if in.cfg.Watchdog > 0 && in.busy == 0 && in.hostNow().Sub(in.hostSeen) > in.cfg.Watchdog {
+		in.switchOffLocked(now, "watchdog")
 	}
 }
 

@@ -113,7 +113,7 @@ func TestWatchdog(t *testing.T) {
 	if s := b.in.State(); s.HighVoltage || s.OffReason != "watchdog" {
 		t.Errorf("after 11 s of silence: high voltage %v, reason %q; want off by the watchdog", s.HighVoltage, s.OffReason)
 	}
-	// The trip is dated to the watchdog's expiry: a later count sees no tube.
+	// A count after the trip sees no tube.
 	if got := b.count(10 * time.Second); got > 30 {
 		t.Errorf("counts after the watchdog trip: %g, want background only", got)
 	}
@@ -316,8 +316,8 @@ func TestScaledClockDwell(t *testing.T) {
 	if got := float64(c.Channels[0]); math.Abs(got-want) > 5*math.Sqrt(want) {
 		t.Errorf("counts %g, want those of 10 s: %.0f", got, want)
 	}
-	if p := in.WatchdogPeriod(); p != 10*time.Second/3/1000 {
-		t.Errorf("watchdog feed period %v at speed 1000, want a third of 10 s of simulated time", p)
+	if p := in.WatchdogPeriod(); p != 10*time.Second/3 {
+		t.Errorf("watchdog feed period %v at speed 1000, want a third of the 10 s watchdog, in wall time", p)
 	}
 }
 
@@ -350,4 +350,25 @@ func slicesEqual(a, b []uint64) bool {
 		}
 	}
 	return true
+}
+
+func TestWatchdogInHostTime(t *testing.T) {
+	// On a fast simulation the watchdog still counts the host's (wall) time: 20 ms of wall time at speed 1e5
+	// is 2000 s simulated, far over a 200 ms watchdog, yet not a silence of the host.
+	ctx := context.Background()
+	in, err := New(Config{Speed: 1e5, Watchdog: 200 * time.Millisecond}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := in.SetHighVoltage(ctx, true); err != nil {
+		t.Fatal(err)
+	}
+	time.Sleep(20 * time.Millisecond)
+	if s := in.State(); !s.HighVoltage {
+		t.Fatalf("high voltage off after 20 ms of wall time: %+v", s)
+	}
+	time.Sleep(300 * time.Millisecond)
+	if s := in.State(); s.HighVoltage || s.OffReason != "watchdog" {
+		t.Errorf("after 300 ms of host silence: high voltage %v, reason %q; want off by the watchdog", s.HighVoltage, s.OffReason)
+	}
 }

@@ -77,16 +77,12 @@ func (in *Instrument) Feed(context.Context) error {
 	return nil
 }
 
-// WatchdogPeriod is a third of the watchdog time, in wall time (the clock's speed taken into account).
+// WatchdogPeriod is a third of the watchdog time. Both are host (wall) time, whatever the clock's speed.
 func (in *Instrument) WatchdogPeriod() time.Duration {
 	if in.cfg.Watchdog <= 0 {
 		return time.Minute
 	}
-	speed := 1.0
-	if c, ok := in.clock.(interface{ Speed() float64 }); ok {
-		speed = c.Speed()
-	}
-	return max(time.Duration(float64(in.cfg.Watchdog)/3/speed), time.Millisecond)
+	return in.cfg.Watchdog / 3
 }
 
 // Count gates the counter for gate (simulated time) and returns the counts the Geiger–Müller tube recorded:
