@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"math"
+	"slices"
 	"strings"
 	"sync"
 	"testing"
@@ -332,24 +333,12 @@ func TestSameSeedSameCounts(t *testing.T) {
 		return out
 	}
 	a, b, c := run(99), run(99), run(100)
-	if !slicesEqual(a, b) {
+	if !slices.Equal(a, b) {
 		t.Errorf("same seed, different counts: %v, %v", a, b)
 	}
-	if slicesEqual(a, c) {
+	if slices.Equal(a, c) {
 		t.Errorf("different seeds, same counts: %v", a)
 	}
-}
-
-func slicesEqual(a, b []uint64) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
 }
 
 func TestWatchdogInHostTime(t *testing.T) {
