@@ -137,7 +137,7 @@ The daemon's address comes from --addr, else $GONIO_ADDR, else ` + client.Defaul
 	root.AddCommand(
 		a.scanCommand(), a.watchCommand(), a.listCommand(), a.showCommand(), a.statusCommand(), a.fetchCommand(),
 		a.pauseCommand(), a.resumeCommand(), a.cancelCommand(), a.releaseCommand(),
-		a.moveCommand(), a.sourceCommand(), a.countCommand(),
+		a.moveCommand(), a.sourceCommand(), a.countCommand(), a.analyzeCommand(),
 	)
 	return root
 }
