@@ -108,7 +108,7 @@ func TestPlanRefusals(t *testing.T) {
 		{"source power", func(r *Request) { r.Source = &Source{KV: 35, MA: 1} }, "source"},
 		{"settle negative", func(r *Request) { r.Settle = -time.Second }, "settle"},
 		{"bad kind", func(r *Request) { r.Kind = "spiral" }, "kind"},
-		{"min dwell above dwell", func(r *Request) { r.RelativeError, r.MinDwell = 0.01, 2 * time.Second }, "counting.min_dwell"},
+		{"min dwell above dwell", func(r *Request) { r.RelativeError, r.MinDwell = 0.01, 2*time.Second }, "counting.min_dwell"},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
