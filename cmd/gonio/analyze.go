@@ -58,9 +58,10 @@ dead-time-corrected counts per second.`,
 // analyzeOne is a subcommand that analyses each scan on its own.
 func (a *app) analyzeOne(name, short string, kind client.ResultKind, f *analyzeFlags) *cobra.Command {
 	return &cobra.Command{
-		Use:   name + " ID...",
-		Short: short,
-		Args:  cobra.MinimumNArgs(1),
+		Use:     name + " ID...",
+		Short:   short,
+		Example: fmt.Sprintf("  gonio analyze %s scan-000001\n  gonio analyze %s scan-000001 --output json\n  gonio analyze %s scan-000001 --saved", name, name, name),
+		Args:    cobra.MinimumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := f.check(); err != nil {
 				return err
@@ -92,9 +93,10 @@ func (a *app) analyzeOne(name, short string, kind client.ResultKind, f *analyzeF
 // analyzeMany is a subcommand that analyses all its scans together.
 func (a *app) analyzeMany(name, short string, kind client.ResultKind, f *analyzeFlags) *cobra.Command {
 	return &cobra.Command{
-		Use:   name + " ID...",
-		Short: short,
-		Args:  cobra.MinimumNArgs(1),
+		Use:     name + " ID...",
+		Short:   short,
+		Example: fmt.Sprintf("  gonio analyze %s scan-000001\n  gonio analyze %s scan-000001 --output json\n  gonio analyze %s scan-000001 --saved", name, name, name),
+		Args:    cobra.MinimumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := f.check(); err != nil {
 				return err
