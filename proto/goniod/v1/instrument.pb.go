@@ -1011,7 +1011,12 @@ type AlignRequest struct {
 	Store bool `protobuf:"varint,2,opt,name=store,proto3" json:"store,omitempty"`
 	// Tube setting for the alignment (default: present setting); high voltage is switched on for it
 	// and off afterwards.
-	Source        *Source `protobuf:"bytes,3,opt,name=source,proto3,oneof" json:"source,omitempty"`
+	Source *Source `protobuf:"bytes,3,opt,name=source,proto3,oneof" json:"source,omitempty"`
+	// Half-width in degrees of the coarse search around each axis's present zero (default 1°, at most 5°).
+	SearchDeg float64 `protobuf:"fixed64,4,opt,name=search_deg,json=searchDeg,proto3" json:"search_deg,omitempty"`
+	// Diffraction order of the crystal's reference reflection (0: the second order when both axes reach it,
+	// else the first).
+	Order         uint32 `protobuf:"varint,5,opt,name=order,proto3" json:"order,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1067,13 +1072,29 @@ func (x *AlignRequest) GetSource() *Source {
 	return nil
 }
 
+func (x *AlignRequest) GetSearchDeg() float64 {
+	if x != nil {
+		return x.SearchDeg
+	}
+	return 0
+}
+
+func (x *AlignRequest) GetOrder() uint32 {
+	if x != nil {
+		return x.Order
+	}
+	return 0
+}
+
 type AxisOffset struct {
-	state         protoimpl.MessageState `protogen:"open.v1"`
-	Axis          string                 `protobuf:"bytes,1,opt,name=axis,proto3" json:"axis,omitempty"`
-	OffsetDeg     float64                `protobuf:"fixed64,2,opt,name=offset_deg,json=offsetDeg,proto3" json:"offset_deg,omitempty"`
-	OffsetErrDeg  float64                `protobuf:"fixed64,3,opt,name=offset_err_deg,json=offsetErrDeg,proto3" json:"offset_err_deg,omitempty"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	state        protoimpl.MessageState `protogen:"open.v1"`
+	Axis         string                 `protobuf:"bytes,1,opt,name=axis,proto3" json:"axis,omitempty"`
+	OffsetDeg    float64                `protobuf:"fixed64,2,opt,name=offset_deg,json=offsetDeg,proto3" json:"offset_deg,omitempty"`
+	OffsetErrDeg float64                `protobuf:"fixed64,3,opt,name=offset_err_deg,json=offsetErrDeg,proto3" json:"offset_err_deg,omitempty"`
+	// The zero offset in use before the alignment.
+	PreviousOffsetDeg float64 `protobuf:"fixed64,4,opt,name=previous_offset_deg,json=previousOffsetDeg,proto3" json:"previous_offset_deg,omitempty"`
+	unknownFields     protoimpl.UnknownFields
+	sizeCache         protoimpl.SizeCache
 }
 
 func (x *AxisOffset) Reset() {
@@ -1127,12 +1148,21 @@ func (x *AxisOffset) GetOffsetErrDeg() float64 {
 	return 0
 }
 
+func (x *AxisOffset) GetPreviousOffsetDeg() float64 {
+	if x != nil {
+		return x.PreviousOffsetDeg
+	}
+	return 0
+}
+
 type AlignResult struct {
 	state   protoimpl.MessageState `protogen:"open.v1"`
 	Offsets []*AxisOffset          `protobuf:"bytes,1,rep,name=offsets,proto3" json:"offsets,omitempty"`
 	Stored  bool                   `protobuf:"varint,2,opt,name=stored,proto3" json:"stored,omitempty"`
 	// The scans the routine ran, for inspection.
-	ScanIds       []string `protobuf:"bytes,3,rep,name=scan_ids,json=scanIds,proto3" json:"scan_ids,omitempty"`
+	ScanIds []string `protobuf:"bytes,3,rep,name=scan_ids,json=scanIds,proto3" json:"scan_ids,omitempty"`
+	// The reflection the crystal offset was measured on, e.g. "Cu Kα1, LiF(200), n = 2, θB = 49.931°".
+	Reference     string `protobuf:"bytes,4,opt,name=reference,proto3" json:"reference,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1186,6 +1216,13 @@ func (x *AlignResult) GetScanIds() []string {
 		return x.ScanIds
 	}
 	return nil
+}
+
+func (x *AlignResult) GetReference() string {
+	if x != nil {
+		return x.Reference
+	}
+	return ""
 }
 
 var File_goniod_v1_instrument_proto protoreflect.FileDescriptor
@@ -1270,22 +1307,27 @@ const file_goniod_v1_instrument_proto_rawDesc = "" +
 	"\fCountRequest\x12/\n" +
 	"\x05dwell\x18\x01 \x01(\v2\x19.google.protobuf.DurationR\x05dwell\"5\n" +
 	"\vCountResult\x12&\n" +
-	"\x05point\x18\x01 \x01(\v2\x10.goniod.v1.PointR\x05point\"\x90\x01\n" +
+	"\x05point\x18\x01 \x01(\v2\x10.goniod.v1.PointR\x05point\"\xc5\x01\n" +
 	"\fAlignRequest\x12/\n" +
 	"\x05dwell\x18\x01 \x01(\v2\x19.google.protobuf.DurationR\x05dwell\x12\x14\n" +
 	"\x05store\x18\x02 \x01(\bR\x05store\x12.\n" +
-	"\x06source\x18\x03 \x01(\v2\x11.goniod.v1.SourceH\x00R\x06source\x88\x01\x01B\t\n" +
-	"\a_source\"e\n" +
+	"\x06source\x18\x03 \x01(\v2\x11.goniod.v1.SourceH\x00R\x06source\x88\x01\x01\x12\x1d\n" +
+	"\n" +
+	"search_deg\x18\x04 \x01(\x01R\tsearchDeg\x12\x14\n" +
+	"\x05order\x18\x05 \x01(\rR\x05orderB\t\n" +
+	"\a_source\"\x95\x01\n" +
 	"\n" +
 	"AxisOffset\x12\x12\n" +
 	"\x04axis\x18\x01 \x01(\tR\x04axis\x12\x1d\n" +
 	"\n" +
 	"offset_deg\x18\x02 \x01(\x01R\toffsetDeg\x12$\n" +
-	"\x0eoffset_err_deg\x18\x03 \x01(\x01R\foffsetErrDeg\"q\n" +
+	"\x0eoffset_err_deg\x18\x03 \x01(\x01R\foffsetErrDeg\x12.\n" +
+	"\x13previous_offset_deg\x18\x04 \x01(\x01R\x11previousOffsetDeg\"\x8f\x01\n" +
 	"\vAlignResult\x12/\n" +
 	"\aoffsets\x18\x01 \x03(\v2\x15.goniod.v1.AxisOffsetR\aoffsets\x12\x16\n" +
 	"\x06stored\x18\x02 \x01(\bR\x06stored\x12\x19\n" +
-	"\bscan_ids\x18\x03 \x03(\tR\ascanIds*j\n" +
+	"\bscan_ids\x18\x03 \x03(\tR\ascanIds\x12\x1c\n" +
+	"\treference\x18\x04 \x01(\tR\treference*j\n" +
 	"\tLinkState\x12\x1a\n" +
 	"\x16LINK_STATE_UNSPECIFIED\x10\x00\x12\x11\n" +
 	"\rLINK_STATE_UP\x10\x01\x12\x13\n" +

@@ -961,7 +961,9 @@ type ScanInfo struct {
 	Anode      string  `protobuf:"bytes,8,opt,name=anode,proto3" json:"anode,omitempty"`
 	DeadTimeS  float64 `protobuf:"fixed64,9,opt,name=dead_time_s,json=deadTimeS,proto3" json:"dead_time_s,omitempty"`
 	// Counter channels; the first is the primary detector, the others get <name>_counts columns.
-	Channels      []string `protobuf:"bytes,10,rep,name=channels,proto3" json:"channels,omitempty"`
+	Channels []string `protobuf:"bytes,10,rep,name=channels,proto3" json:"channels,omitempty"`
+	// The instrument's own identification line (maker, model, serial, firmware), as it answered at start.
+	Identity      string `protobuf:"bytes,11,opt,name=identity,proto3" json:"identity,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1064,6 +1066,13 @@ func (x *ScanInfo) GetChannels() []string {
 		return x.Channels
 	}
 	return nil
+}
+
+func (x *ScanInfo) GetIdentity() string {
+	if x != nil {
+		return x.Identity
+	}
+	return ""
 }
 
 // Scan is the record of one scan.
@@ -1403,7 +1412,7 @@ const file_goniod_v1_types_proto_rawDesc = "" +
 	"\boperator\x18\x15 \x01(\tR\boperator\x12\x12\n" +
 	"\x04note\x18\x16 \x01(\tR\x04noteB\x06\n" +
 	"\x04kindB\t\n" +
-	"\a_source\"\xac\x02\n" +
+	"\a_source\"\xc8\x02\n" +
 	"\bScanInfo\x12\x1e\n" +
 	"\n" +
 	"instrument\x18\x01 \x01(\tR\n" +
@@ -1419,7 +1428,8 @@ const file_goniod_v1_types_proto_rawDesc = "" +
 	"\x05anode\x18\b \x01(\tR\x05anode\x12\x1e\n" +
 	"\vdead_time_s\x18\t \x01(\x01R\tdeadTimeS\x12\x1a\n" +
 	"\bchannels\x18\n" +
-	" \x03(\tR\bchannels\"\xb4\x03\n" +
+	" \x03(\tR\bchannels\x12\x1a\n" +
+	"\bidentity\x18\v \x01(\tR\bidentity\"\xb4\x03\n" +
 	"\x04Scan\x12\x0e\n" +
 	"\x02id\x18\x01 \x01(\tR\x02id\x12\x1b\n" +
 	"\tseries_id\x18\x02 \x01(\tR\bseriesId\x120\n" +
