@@ -44,7 +44,7 @@ var methodRoles = map[string]Role{
 // serviceRoles covers the standard services by service name: the health check is open to probes without a
 // token; reflection describes the API and needs a viewer.
 var serviceRoles = map[string]Role{
-	healthpb.Health_ServiceDesc.ServiceName: Public,
+	healthpb.Health_ServiceDesc.ServiceName:    Public,
 	"grpc.reflection.v1.ServerReflection":      Viewer,
 	"grpc.reflection.v1alpha.ServerReflection": Viewer,
 }
