@@ -12,13 +12,26 @@ import (
 	goniodv1 "goniod/proto/goniod/v1"
 )
 
+// appendFile is what an Appender needs of its file (an *os.File; tests put a failing one in its place).
+type appendFile interface {
+	io.Writer
+	Sync() error
+	Truncate(size int64) error
+	Seek(offset int64, whence int) (int64, error)
+	Close() error
+}
+
 // Appender appends points to one scan's points file. Not safe for concurrent use: the scan engine owns it.
 type Appender struct {
-	f     *os.File
+	f     appendFile
 	table *goniodv1.PointTable
 	count int
 	size  int64
 	buf   []byte
+	// cut is called when the file is cut back, so that readers' offset index forgets what was cut.
+	cut func()
+	// broken is set when a failed write could not be undone: the file's tail is unknown until it is reopened.
+	broken error
 }
 
 // Recovered describes what opening a points file for append found.
@@ -45,6 +58,7 @@ func (s *Store) OpenAppender(id string) (*Appender, Recovered, error) {
 	}
 	rec := Recovered{Points: count, DroppedBytes: total - good}
 	if good < total {
+		s.forgetIndex(id)
 		if err := f.Truncate(good); err != nil {
 			f.Close()
 			return nil, rec, fmt.Errorf("cut torn line of %s: %w", id, err)
@@ -58,7 +72,7 @@ func (s *Store) OpenAppender(id string) (*Appender, Recovered, error) {
 		f.Close()
 		return nil, rec, err
 	}
-	return &Appender{f: f, table: table, count: count, size: good}, rec, nil
+	return &Appender{f: f, table: table, count: count, size: good, cut: func() { s.forgetIndex(id) }}, rec, nil
 }
 
 // scanPoints reads a points file from the start: its layout, the number of intact points, the offset just
@@ -115,8 +129,12 @@ func (a *Appender) Count() int { return a.count }
 func (a *Appender) Table() *goniodv1.PointTable { return a.table }
 
 // Append writes points and fsyncs them; when it returns nil they are durable. On an error the file is cut back
-// to the last durable point, so nothing already stored is damaged.
+// to the last durable point, so nothing already stored is damaged; when even that fails, the appender refuses
+// further points (the next OpenAppender drops the torn tail).
 func (a *Appender) Append(points ...*goniodv1.Point) error {
+	if a.broken != nil {
+		return fmt.Errorf("points file unusable after an earlier failure: %w", a.broken)
+	}
 	a.buf = a.buf[:0]
 	for i, p := range points {
 		if int(p.Index) != a.count+i {
@@ -125,11 +143,11 @@ func (a *Appender) Append(points ...*goniodv1.Point) error {
 		a.buf = a.table.AppendCSV(a.buf, p)
 	}
 	if _, err := a.f.Write(a.buf); err != nil {
-		a.rollback()
+		a.rollback(err)
 		return fmt.Errorf("write points: %w", err)
 	}
 	if err := a.f.Sync(); err != nil {
-		a.rollback()
+		a.rollback(err)
 		return fmt.Errorf("sync points: %w", err)
 	}
 	a.count += len(points)
@@ -137,32 +155,39 @@ func (a *Appender) Append(points ...*goniodv1.Point) error {
 	return nil
 }
 
-func (a *Appender) rollback() {
-	_ = a.f.Truncate(a.size)
-	_, _ = a.f.Seek(a.size, io.SeekStart)
+// rollback cuts the file back to its last durable point after a failed write or sync.
+func (a *Appender) rollback(cause error) {
+	a.cut()
+	if err := a.f.Truncate(a.size); err != nil {
+		a.broken = fmt.Errorf("%v, and cutting back failed: %w", cause, err)
+		return
+	}
+	if _, err := a.f.Seek(a.size, io.SeekStart); err != nil {
+		a.broken = fmt.Errorf("%v, and seeking back failed: %w", cause, err)
+	}
 }
 
 // Close closes the file.
 func (a *Appender) Close() error { return a.f.Close() }
 
 // ReadPoints calls fn for the points of a scan with from <= index < from+limit (limit 0: to the end), in
-// order, reading the file as a stream. A torn last line is skipped.
+// order, reading the file as a stream: memory does not grow with the scan. A late from seeks through the
+// store's offset index instead of reading the file from its start. A torn last line is skipped.
 func (s *Store) ReadPoints(ctx context.Context, id string, from, limit int, fn func(*goniodv1.Point) error) error {
 	f, err := os.Open(s.PointsPath(id))
 	if err != nil {
 		return fmt.Errorf("read points of %s: %w", id, err)
 	}
 	defer f.Close()
-	r := bufio.NewReaderSize(f, 1<<16)
-	header, err := r.ReadBytes('\n')
-	if err != nil {
-		return fmt.Errorf("points of %s: no header: %w", id, err)
-	}
-	table, err := goniodv1.ParsePointTable(string(header))
+	table, off, at, err := s.locate(f, id, from)
 	if err != nil {
 		return fmt.Errorf("points of %s: %w", id, err)
 	}
-	for i := 0; limit == 0 || i < from+limit; i++ {
+	if _, err := f.Seek(off, io.SeekStart); err != nil {
+		return fmt.Errorf("points of %s: %w", id, err)
+	}
+	r := bufio.NewReaderSize(f, 1<<16)
+	for i := at; limit == 0 || i < from+limit; i++ {
 		line, err := r.ReadSlice('\n')
 		if errors.Is(err, bufio.ErrBufferFull) {
 			return fmt.Errorf("points of %s: line %d too long", id, i+2)

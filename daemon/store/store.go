@@ -25,6 +25,7 @@ const (
 	seriesDir   = "series"
 	resultsDir  = "results"
 	recordFile  = "scan.json"
+	alignFile   = "alignment.json"
 	pointsFile  = "points.csv"
 	lockFile    = "goniod.lock"
 	scanPrefix  = "scan-"
@@ -40,6 +41,9 @@ type Store struct {
 	mu         sync.Mutex
 	nextScan   int
 	nextSeries int
+
+	idxMu sync.Mutex
+	idx   map[string]*pointIndex // offset index of points files, by scan ID
 }
 
 // Open opens (creating if needed) a data directory and takes its lock.
@@ -206,6 +210,34 @@ func (s *Store) LoadSeries(id string, v any) error {
 		return fmt.Errorf("read series %s: %w", id, err)
 	}
 	return json.Unmarshal(b, v)
+}
+
+// SaveAlignment stores the instrument's alignment (zero offsets found by the alignment routine) atomically, so
+// that it survives a restart.
+func (s *Store) SaveAlignment(v any) error {
+	b, err := json.MarshalIndent(v, "", "  ")
+	if err != nil {
+		return fmt.Errorf("encode alignment: %w", err)
+	}
+	if err := writeAtomic(filepath.Join(s.dir, alignFile), append(b, '\n')); err != nil {
+		return fmt.Errorf("save alignment: %w", err)
+	}
+	return nil
+}
+
+// LoadAlignment reads the stored alignment into v; found is false when none was stored.
+func (s *Store) LoadAlignment(v any) (found bool, err error) {
+	b, err := os.ReadFile(filepath.Join(s.dir, alignFile))
+	if errors.Is(err, fs.ErrNotExist) {
+		return false, nil
+	}
+	if err != nil {
+		return false, fmt.Errorf("read alignment: %w", err)
+	}
+	if err := json.Unmarshal(b, v); err != nil {
+		return false, fmt.Errorf("read alignment %s: %w", filepath.Join(s.dir, alignFile), err)
+	}
+	return true, nil
 }
 
 // SaveResult stores an analysis result beside a scan, as results/<kind>.json.

@@ -14,9 +14,11 @@ import (
 	goniodv1 "goniod/proto/goniod/v1"
 )
 
+var discard = slog.New(slog.DiscardHandler)
+
 func newStore(t *testing.T) *Store {
 	t.Helper()
-	s, err := Open(t.TempDir(), slog.New(slog.DiscardHandler))
+	s, err := Open(t.TempDir(), discard)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -33,7 +35,7 @@ func point(i int) *goniodv1.Point {
 		DwellS: 1, Counts: uint64(100 + i), RateCps: float64(100 + i), RateErrCps: 10, TubeKv: 30, TubeMa: 0.8}
 }
 
-func create(t *testing.T, s *Store, points int) string {
+func create(t testing.TB, s *Store, points int) string {
 	t.Helper()
 	rec := &scan.Record{ID: s.NewScanID(), State: scan.Queued, Created: time.Now()}
 	if err := s.Create(rec, table.Header()); err != nil {
