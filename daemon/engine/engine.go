@@ -173,7 +173,8 @@ type SeriesRecord struct {
 
 // SubmitSeries validates every scan of a series and queues them all, or none.
 func (e *Engine) SubmitSeries(sr scan.SeriesRequest) (SeriesRecord, error) {
-	if err := validateSeries(sr, e.ctl.Config()); err != nil {
+	cfg := e.ctl.Config()
+	if err := sr.Validate(&cfg); err != nil {
 		return SeriesRecord{}, err
 	}
 	id := e.store.NewSeriesID()

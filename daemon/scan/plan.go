@@ -61,10 +61,9 @@ func (p *Plan) Targets(i int) []Target {
 // is 20.2, not 20.200000000000003); 1e-9° is far below any goniometer's resolution.
 func tidy(deg float64) float64 { return math.Round(deg*1e9) / 1e9 }
 
-// Dwell limits common to every kind.
-const (
-	minSliceDwell = 10 * time.Millisecond
-)
+// MinSlice is the shortest counting gate of one slice when counting to precision: shorter gates would spend
+// more time in the exchange with the instrument than in counting.
+const MinSlice = 10 * time.Millisecond
 
 // NewPlan validates a request against the instrument configuration and returns its plan. Every error names the
 // request field and the allowed range.
@@ -100,13 +99,17 @@ func checkCounting(es *validate.Errors, r Request, cfg *instrument.Config) {
 	if r.Dwell <= 0 || r.Dwell > cfg.MaxDwell {
 		es.Add("counting.dwell", "%v is outside the allowed range (0s, %v]", r.Dwell, cfg.MaxDwell)
 	}
-	if r.RelativeError != 0 {
-		if !es.Range("counting.relative_error", r.RelativeError, 1e-4, 0.5, "") {
-			return
+	if r.RelativeError == 0 {
+		if r.MinDwell != 0 {
+			es.Add("counting.min_dwell", "%v is set without counting.relative_error; it is the slice of counting to precision", r.MinDwell)
 		}
-		if r.MinDwell < 0 || r.MinDwell > r.Dwell {
-			es.Add("counting.min_dwell", "%v is outside the allowed range [0s, dwell %v]", r.MinDwell, r.Dwell)
-		}
+		return
+	}
+	if !es.Range("counting.relative_error", r.RelativeError, 1e-4, 0.5, "") {
+		return
+	}
+	if r.MinDwell != 0 && (r.MinDwell < MinSlice || r.MinDwell > r.Dwell) {
+		es.Add("counting.min_dwell", "%v is outside the allowed range [%v, dwell %v] (0: dwell/100, at least %v)", r.MinDwell, MinSlice, r.Dwell, MinSlice)
 	}
 }
 
