@@ -58,10 +58,15 @@ type InstrumentFile struct {
 	ZeroOffsets map[string]float64 `yaml:"zero_offsets"`
 }
 
-// Limits bound what one request may ask.
+// Limits bound what one request may ask, and how much one caller may ask of the daemon.
 type Limits struct {
 	MaxPoints int           `yaml:"max_points"`
 	MaxDwell  time.Duration `yaml:"max_dwell"`
+	// Per caller (token name, client certificate name, or peer host): sustained calls per second and burst
+	// (0: defaults 100/s and 200; negative: no rate limit), and open streams (0: default 2048; negative: none).
+	RequestsPerSecond float64 `yaml:"requests_per_second"`
+	RequestBurst      int     `yaml:"request_burst"`
+	StreamsPerClient  int     `yaml:"streams_per_client"`
 }
 
 // Security configures TLS and tokens.

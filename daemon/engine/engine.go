@@ -55,7 +55,9 @@ type Engine struct {
 	ids     []string // creation order
 	manual  bool     // a manual operation holds the instrument
 	running *entry
-	wake    chan struct{}
+	// draining: the daemon shuts down; the running scan stops after its point and no other starts (Drain)
+	draining bool
+	wake     chan struct{}
 }
 
 // entry is one scan known to the engine.
@@ -414,7 +416,7 @@ func (e *Engine) ReadPoints(ctx context.Context, id string, from, limit int, fn 
 	if err != nil {
 		return err
 	}
-	durable := en.hub.look(0, 0).durable
+	durable := en.hub.durablePoints()
 	if from >= durable {
 		return nil
 	}
@@ -423,64 +425,6 @@ func (e *Engine) ReadPoints(ctx context.Context, id string, from, limit int, fn 
 		n = limit
 	}
 	return e.store.ReadPoints(ctx, id, from, n, fn)
-}
-
-// Event is one item of a watch: a point, or a record after a state change; End marks the last.
-type Event struct {
-	Point  *goniodv1.Point
-	Record *scan.Record
-	End    bool
-}
-
-// Watch sends the scan's record, then every durable point from index from (replayed from the store, then
-// live), with state changes in between, until the scan ends (an End event) or ctx ends.
-func (e *Engine) Watch(ctx context.Context, id string, from int, send func(Event) error) error {
-	en, err := e.lookup(id)
-	if err != nil {
-		return err
-	}
-	cursor := from
-	var seen uint64
-	first := true
-	for {
-		v := en.hub.look(cursor, 256)
-		if first || v.version != seen {
-			first, seen = false, v.version
-			rec := v.rec
-			if err := send(Event{Record: &rec}); err != nil {
-				return err
-			}
-		}
-		switch {
-		case len(v.points) > 0:
-			for _, p := range v.points {
-				if err := send(Event{Point: p}); err != nil {
-					return err
-				}
-			}
-			cursor += len(v.points)
-			continue
-		case cursor < v.durable:
-			// Behind the in-memory ring: catch up from the store in bounded chunks.
-			n := min(v.durable-cursor, 4096)
-			err := e.store.ReadPoints(ctx, id, cursor, n, func(p *goniodv1.Point) error {
-				cursor++
-				return send(Event{Point: p})
-			})
-			if err != nil {
-				return err
-			}
-			continue
-		case v.rec.State.Terminal():
-			rec := v.rec
-			return send(Event{Record: &rec, End: true})
-		}
-		select {
-		case <-ctx.Done():
-			return ctx.Err()
-		case <-v.changed:
-		}
-	}
 }
 
 var errStopped = errors.New("stopped")

@@ -11,15 +11,27 @@ import (
 // reads from the store. It bounds memory per running scan whatever the number or speed of watchers.
 const ringSize = 4096
 
+// historySize is how many state changes a hub keeps, so that a watcher that was busy still sees each change
+// in its place among the points; one further behind sees the latest changes only.
+const historySize = 64
+
 // hub publishes one scan's durable points and state changes to any number of watchers. The publisher never
 // waits for a watcher: each watcher pulls at its own pace and wakes on a channel that is closed at every change.
 type hub struct {
-	mu      sync.Mutex
-	ring    []*goniodv1.Point // ring[i % ringSize] holds point i for i in [durable-len, durable)
-	durable int               // points durable on disk
-	rec     scan.Record       // latest record
+	mu      sync.RWMutex
+	rec     scan.Record
+	durable int               // points [0, durable) are on disk
+	ring    []*goniodv1.Point // recent points by index % ringSize; nil while the scan does not run
 	version uint64            // bumped at every state change
-	changed chan struct{}
+	history []change          // the latest state changes, oldest first
+	changed chan struct{}     // closed and replaced at every publish and state change
+}
+
+// change is a state change and how many points were durable when it happened.
+type change struct {
+	version uint64
+	durable int
+	rec     scan.Record
 }
 
 func newHub(rec scan.Record, durable int) *hub {
@@ -46,6 +58,10 @@ func (h *hub) setRecord(rec scan.Record) {
 	h.mu.Lock()
 	h.rec = rec
 	h.version++
+	if len(h.history) == historySize {
+		h.history = append(h.history[:0], h.history[1:]...)
+	}
+	h.history = append(h.history, change{version: h.version, durable: h.durable, rec: rec})
 	if rec.State.Terminal() || rec.State == scan.Queued || rec.State == scan.Held {
 		h.ring = nil // not running: free the memory; watchers read the store
 	}
@@ -64,14 +80,22 @@ type view struct {
 	durable int
 	rec     scan.Record
 	version uint64
+	changes []change // state changes after the watcher's version, oldest first
 	changed <-chan struct{}
 }
 
-// look returns the state for a watcher at cursor, with at most max in-memory points.
-func (h *hub) look(cursor, max int) view {
-	h.mu.Lock()
-	defer h.mu.Unlock()
+// look returns the state for a watcher at cursor that has seen state version seen, with at most max
+// in-memory points.
+func (h *hub) look(cursor, max int, seen uint64) view {
+	h.mu.RLock()
+	defer h.mu.RUnlock()
 	v := view{durable: h.durable, rec: h.rec, version: h.version, changed: h.changed}
+	for i := range h.history {
+		if h.history[i].version > seen {
+			v.changes = append(v.changes, h.history[i:]...)
+			break
+		}
+	}
 	oldest := h.durable - ringSize
 	if h.ring != nil && cursor < h.durable && cursor >= oldest && cursor >= 0 {
 		end := min(h.durable, cursor+max)
@@ -86,9 +110,16 @@ func (h *hub) look(cursor, max int) view {
 	return v
 }
 
+// durablePoints is the number of points on disk.
+func (h *hub) durablePoints() int {
+	h.mu.RLock()
+	defer h.mu.RUnlock()
+	return h.durable
+}
+
 // record returns the latest record.
 func (h *hub) record() scan.Record {
-	h.mu.Lock()
-	defer h.mu.Unlock()
+	h.mu.RLock()
+	defer h.mu.RUnlock()
 	return h.rec
 }

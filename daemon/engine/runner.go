@@ -42,7 +42,7 @@ func (e *Engine) Run(ctx context.Context) {
 func (e *Engine) next() *entry {
 	e.mu.Lock()
 	defer e.mu.Unlock()
-	if e.manual || e.running != nil {
+	if e.manual || e.running != nil || e.draining {
 		return nil
 	}
 	var pick *entry
@@ -112,9 +112,11 @@ func (e *Engine) execute(ctx context.Context, en *entry, log *slog.Logger) outco
 	}
 	for i := app.Count(); i < plan.Len(); i++ {
 		e.mu.Lock()
-		cancel, pause := en.cancelReq, en.pauseReq
+		cancel, pause, draining := en.cancelReq, en.pauseReq, e.draining
 		e.mu.Unlock()
 		switch {
+		case draining:
+			return outcome{scan.Interrupted, fmt.Sprintf("the daemon shut down after %d points; resume to continue", i)}
 		case cancel:
 			return outcome{scan.Cancelled, fmt.Sprintf("cancelled by an operator after %d points", i)}
 		case pause:

@@ -3,6 +3,8 @@
 package metrics
 
 import (
+	"math"
+	"sync"
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
@@ -13,38 +15,49 @@ import (
 	goniodv1 "goniod/proto/goniod/v1"
 )
 
-// Metrics holds goniod's collectors. It is an engine.Observer.
+// Scans is what the metrics read from the scan engine at scrape time (in-memory records only).
+type Scans interface {
+	List(after string, limit int, states []scan.State) ([]scan.Record, string)
+}
+
+// Metrics holds goniod's collectors. It is an engine.Observer and the safety monitor's event recorder.
 type Metrics struct {
 	pointsPersisted prometheus.Counter
 	counts          prometheus.Counter
 	overhead        prometheus.Histogram
-	rate            prometheus.Gauge
-	correctedRate   prometheus.Gauge
 	scansByState    *prometheus.CounterVec
 	progress        *prometheus.GaugeVec
+	lastProgress    prometheus.Gauge
+	safety          *prometheus.CounterVec
+	now             func() time.Time
+
+	mu      sync.Mutex
+	running string // ID of the scan whose progress is exported
 }
 
-// New registers goniod's metrics on reg. state supplies the cached instrument state and queue length.
-func New(reg prometheus.Registerer, ctl *instrument.Controller, queueLength func() int) *Metrics {
+// New registers goniod's metrics on reg: the controller's cached state and the engine's scans are read at
+// scrape time, points and state changes arrive through the Observer methods.
+func New(reg prometheus.Registerer, ctl *instrument.Controller, scans Scans) *Metrics {
 	m := &Metrics{
 		pointsPersisted: prometheus.NewCounter(prometheus.CounterOpts{Name: "goniod_points_persisted_total",
 			Help: "Scan points stored durably (fsynced)."}),
 		counts: prometheus.NewCounter(prometheus.CounterOpts{Name: "goniod_detector_counts_total",
 			Help: "Raw detector counts of all stored points."}),
 		overhead: prometheus.NewHistogram(prometheus.HistogramOpts{Name: "goniod_point_overhead_seconds",
-			Help:    "Daemon time per point outside the instrument (moves, counting, status).",
+			Help:    "Daemon time per point outside the instrument's moves and counting (planning, storing, publishing).",
 			Buckets: prometheus.ExponentialBuckets(5e-6, 2.5, 12)}),
-		rate: prometheus.NewGauge(prometheus.GaugeOpts{Name: "goniod_count_rate_per_second",
-			Help: "Raw count rate of the latest point."}),
-		correctedRate: prometheus.NewGauge(prometheus.GaugeOpts{Name: "goniod_count_rate_corrected_per_second",
-			Help: "Dead-time-corrected count rate of the latest point."}),
 		scansByState: prometheus.NewCounterVec(prometheus.CounterOpts{Name: "goniod_scan_transitions_total",
 			Help: "Scan state changes, by the state entered."}, []string{"state"}),
 		progress: prometheus.NewGaugeVec(prometheus.GaugeOpts{Name: "goniod_scan_progress_ratio",
-			Help: "Points done over points planned of the scan that runs (0 when none)."}, []string{"scan"}),
+			Help: "Points done over points planned of the scan that runs."}, []string{"scan"}),
+		lastProgress: prometheus.NewGauge(prometheus.GaugeOpts{Name: "goniod_scan_last_progress_timestamp_seconds",
+			Help: "Unix time of the running scan's latest point, or of its start when it has none yet."}),
+		safety: prometheus.NewCounterVec(prometheus.CounterOpts{Name: "goniod_safety_events_total",
+			Help: "Safety events: the interlock opening, high voltage switched off by the safety policy."}, []string{"event"}),
+		now: time.Now,
 	}
-	reg.MustRegister(m.pointsPersisted, m.counts, m.overhead, m.rate, m.correctedRate, m.scansByState, m.progress,
-		&stateCollector{ctl: ctl, queueLength: queueLength})
+	reg.MustRegister(m.pointsPersisted, m.counts, m.overhead, m.scansByState, m.progress, m.lastProgress, m.safety,
+		&stateCollector{ctl: ctl, scans: scans})
 	return m
 }
 
@@ -53,25 +66,50 @@ func (m *Metrics) PointStored(rec *scan.Record, p *goniodv1.Point, overhead time
 	m.pointsPersisted.Inc()
 	m.counts.Add(float64(p.Counts))
 	m.overhead.Observe(overhead.Seconds())
-	m.rate.Set(p.RateCps)
-	m.correctedRate.Set(p.CorrectedRateCps)
+	m.lastProgress.Set(float64(m.now().UnixNano()) / 1e9)
 	if rec.PointsTotal > 0 {
 		m.progress.WithLabelValues(rec.ID).Set(float64(p.Index+1) / float64(rec.PointsTotal))
 	}
 }
 
-// StateChanged counts state changes and drops the progress of scans that stopped running.
+// StateChanged counts state changes; the progress of a scan is exported while it runs.
 func (m *Metrics) StateChanged(rec *scan.Record) {
 	m.scansByState.WithLabelValues(string(rec.State)).Inc()
-	if rec.State != scan.Running {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	switch {
+	case rec.State == scan.Running:
+		if m.running != "" && m.running != rec.ID {
+			m.progress.DeleteLabelValues(m.running)
+		}
+		m.running = rec.ID
+		m.lastProgress.Set(float64(m.now().UnixNano()) / 1e9)
+		if rec.PointsTotal > 0 {
+			m.progress.WithLabelValues(rec.ID).Set(float64(rec.PointsDone) / float64(rec.PointsTotal))
+		}
+	case rec.ID == m.running:
 		m.progress.DeleteLabelValues(rec.ID)
+		m.running = ""
 	}
 }
 
-// stateCollector exports the controller's cached state at scrape time.
+// KnowSafetyEvents exports the named safety events at zero, so alerts and graphs see them before they happen.
+func (m *Metrics) KnowSafetyEvents(events ...string) {
+	for _, e := range events {
+		m.safety.WithLabelValues(e)
+	}
+}
+
+// SafetyEvent counts one safety event.
+func (m *Metrics) SafetyEvent(event string) { m.safety.WithLabelValues(event).Inc() }
+
+// allStates are the scan states exported by goniod_scans, zero included.
+var allStates = []scan.State{scan.Queued, scan.Running, scan.Paused, scan.Interrupted, scan.Held, scan.Done, scan.Failed, scan.Cancelled}
+
+// stateCollector exports the controller's cached state and the scans' states at scrape time.
 type stateCollector struct {
-	ctl         *instrument.Controller
-	queueLength func() int
+	ctl   *instrument.Controller
+	scans Scans
 }
 
 var (
@@ -85,11 +123,18 @@ var (
 	descLinkErr   = prometheus.NewDesc("goniod_link_errors_total", "Failed exchanges with the instrument.", nil, nil)
 	descLinkTO    = prometheus.NewDesc("goniod_link_timeouts_total", "Exchanges with the instrument that timed out.", nil, nil)
 	descLinkRe    = prometheus.NewDesc("goniod_link_reconnects_total", "Reconnections to the instrument.", nil, nil)
+	descRate      = prometheus.NewDesc("goniod_count_rate_per_second", "Raw count rate of the latest count (scan point or single count).", nil, nil)
+	descCorrected = prometheus.NewDesc("goniod_count_rate_corrected_per_second", "Dead-time-corrected count rate of the latest count.", nil, nil)
+	descUpdated   = prometheus.NewDesc("goniod_state_updated_timestamp_seconds", "Unix time the cached instrument state was last read from the instrument.", nil, nil)
 	descQueue     = prometheus.NewDesc("goniod_queue_length", "Scans waiting in the queue.", nil, nil)
+	descScans     = prometheus.NewDesc("goniod_scans", "Scans known to the daemon, by state.", []string{"state"}, nil)
+	descInfo      = prometheus.NewDesc("goniod_instrument_info", "The instrument served: name, driver, anode and crystal (value 1).",
+		[]string{"instrument", "driver", "anode", "crystal"}, nil)
 )
 
 func (c *stateCollector) Describe(ch chan<- *prometheus.Desc) {
-	for _, d := range []*prometheus.Desc{descAxis, descKV, descMA, descHV, descInterlock, descLink, descLinkErr, descLinkTO, descLinkRe, descQueue} {
+	for _, d := range []*prometheus.Desc{descAxis, descKV, descMA, descHV, descInterlock, descLink, descLinkErr, descLinkTO,
+		descLinkRe, descRate, descCorrected, descUpdated, descQueue, descScans, descInfo} {
 		ch <- d
 	}
 }
@@ -103,16 +148,39 @@ func b2f(b bool) float64 {
 
 func (c *stateCollector) Collect(ch chan<- prometheus.Metric) {
 	st := c.ctl.State()
-	for axis, deg := range st.Positions {
-		ch <- prometheus.MustNewConstMetric(descAxis, prometheus.GaugeValue, deg, axis)
+	cfg := c.ctl.Config()
+	gauge := func(d *prometheus.Desc, v float64, labels ...string) {
+		ch <- prometheus.MustNewConstMetric(d, prometheus.GaugeValue, v, labels...)
 	}
-	ch <- prometheus.MustNewConstMetric(descKV, prometheus.GaugeValue, st.Source.KV*1e3)
-	ch <- prometheus.MustNewConstMetric(descMA, prometheus.GaugeValue, st.Source.MA*1e-3)
-	ch <- prometheus.MustNewConstMetric(descHV, prometheus.GaugeValue, b2f(st.Source.HighVoltage))
-	ch <- prometheus.MustNewConstMetric(descInterlock, prometheus.GaugeValue, b2f(st.InterlockClosed))
-	ch <- prometheus.MustNewConstMetric(descLink, prometheus.GaugeValue, b2f(st.Link.State == driver.LinkUp))
-	ch <- prometheus.MustNewConstMetric(descLinkErr, prometheus.CounterValue, float64(st.Link.Errors))
-	ch <- prometheus.MustNewConstMetric(descLinkTO, prometheus.CounterValue, float64(st.Link.Timeouts))
-	ch <- prometheus.MustNewConstMetric(descLinkRe, prometheus.CounterValue, float64(st.Link.Reconnects))
-	ch <- prometheus.MustNewConstMetric(descQueue, prometheus.GaugeValue, float64(c.queueLength()))
+	counter := func(d *prometheus.Desc, v uint64) {
+		ch <- prometheus.MustNewConstMetric(d, prometheus.CounterValue, float64(v))
+	}
+	for _, a := range cfg.Axes {
+		if deg, ok := st.Positions[a.Name]; ok {
+			gauge(descAxis, deg, a.Name)
+		}
+	}
+	gauge(descKV, st.Source.KV*1e3)
+	gauge(descMA, st.Source.MA*1e-3)
+	gauge(descHV, b2f(st.Source.HighVoltage))
+	gauge(descInterlock, b2f(st.InterlockClosed))
+	gauge(descLink, b2f(st.Link.State == driver.LinkUp))
+	counter(descLinkErr, st.Link.Errors)
+	counter(descLinkTO, st.Link.Timeouts)
+	counter(descLinkRe, st.Link.Reconnects)
+	gauge(descRate, st.RateCPS)
+	gauge(descCorrected, st.CorrectedRateCPS)
+	if !st.Updated.IsZero() {
+		gauge(descUpdated, float64(st.Updated.UnixNano())/1e9)
+	}
+	gauge(descInfo, 1, cfg.Name, cfg.Driver, cfg.Tube.Anode, cfg.Crystal)
+	byState := map[scan.State]int{}
+	recs, _ := c.scans.List("", math.MaxInt, nil)
+	for _, r := range recs {
+		byState[r.State]++
+	}
+	gauge(descQueue, float64(byState[scan.Queued]))
+	for _, s := range allStates {
+		gauge(descScans, float64(byState[s]), string(s))
+	}
 }

@@ -22,13 +22,17 @@ import (
 	"google.golang.org/grpc/credentials"
 	"google.golang.org/grpc/health"
 	healthpb "google.golang.org/grpc/health/grpc_health_v1"
+	"google.golang.org/grpc/keepalive"
 	"google.golang.org/grpc/reflection"
 
 	"goniod/daemon/api"
+	"goniod/daemon/auth"
 	"goniod/daemon/config"
 	"goniod/daemon/engine"
 	"goniod/daemon/instrument"
 	"goniod/daemon/metrics"
+	"goniod/daemon/safety"
+	"goniod/daemon/scan"
 	"goniod/daemon/store"
 	"goniod/driver"
 	goniodv1 "goniod/proto/goniod/v1"
@@ -44,10 +48,23 @@ type Options struct {
 	MetricsListener net.Listener
 	// Ready is called with the addresses once the daemon serves.
 	Ready func(grpcAddr, metricsAddr string)
+	// Instrument opened by the caller (tests hold the simulator to inject faults); nil opens the configured
+	// driver. Run does not close it.
+	Instrument driver.Instrument
 }
 
-// maxMessageBytes bounds one gRPC message in either direction.
-const maxMessageBytes = 16 << 20
+// Bounds on what the network can make the daemon hold: one request, one answer, the header list, streams per
+// connection. Requests are small; inline points for analysis are the largest (about 100 bytes a point).
+const (
+	maxRequestBytes     = 4 << 20
+	maxMessageBytes     = 16 << 20
+	maxHeaderBytes      = 16 << 10
+	maxStreamsPerConn   = 4096
+	defaultRate         = 100
+	defaultBurst        = 200
+	defaultStreams      = 2048
+	defaultShutdownTime = 15 * time.Second
+)
 
 // Run runs the daemon until ctx ends, then shuts down: the running scan stops between points and is
 // interrupted, high voltage goes off, servers stop.
@@ -57,6 +74,10 @@ func Run(ctx context.Context, o Options) error {
 		cfg.Data = config.DefaultDataDir()
 	}
 	if err := checkListen(cfg, log); err != nil {
+		return err
+	}
+	tokens, err := loadTokens(cfg, log)
+	if err != nil {
 		return err
 	}
 	st, err := store.Open(cfg.Data, log)
@@ -70,13 +91,16 @@ func Run(ctx context.Context, o Options) error {
 	if drvName == "" {
 		drvName = "sim"
 	}
-	openCtx, cancelOpen := context.WithTimeout(ctx, 30*time.Second)
-	drv, err := driver.Open(openCtx, drvName, driver.Params{Decode: cfg.DriverDecoder(drvName), Logger: log.With("driver", drvName)})
-	cancelOpen()
-	if err != nil {
-		return err
+	drv := o.Instrument
+	if drv == nil {
+		openCtx, cancelOpen := context.WithTimeout(ctx, 30*time.Second)
+		drv, err = driver.Open(openCtx, drvName, driver.Params{Decode: cfg.DriverDecoder(drvName), Logger: log.With("driver", drvName)})
+		cancelOpen()
+		if err != nil {
+			return err
+		}
+		defer drv.Close()
 	}
-	defer drv.Close()
 
 	icfg, err := instrumentConfig(cfg, drvName, drv)
 	if err != nil {
@@ -108,13 +132,24 @@ func Run(ctx context.Context, o Options) error {
 	reg := prometheus.NewRegistry()
 	reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
 	var eng *engine.Engine
-	m := metrics.New(reg, ctl, func() int { return eng.QueueLength() })
+	m := metrics.New(reg, ctl, scanLister(func(after string, limit int, states []scan.State) ([]scan.Record, string) {
+		return eng.List(after, limit, states)
+	}))
 	eng, err = engine.New(engine.Options{Store: st, Controller: ctl, Log: log.With("part", "engine"), Observer: m, Version: o.Version})
 	if err != nil {
 		return err
 	}
+	mon := safety.New(safety.Options{Instrument: ctl, Scans: eng, Recorder: m, Log: log.With("part", "safety"),
+		IdleHighVoltageOff: cfg.Safety.IdleHighVoltageOff})
+	m.KnowSafetyEvents(safety.Events...)
+	guard := auth.NewGuard(auth.Options{Tokens: tokens, Log: log.With("part", "audit"), Limits: callerLimits(cfg.Limits), OnControl: mon.Touch})
+	gm := metrics.NewGRPC(reg)
 
-	sopts := []grpc.ServerOption{grpc.MaxRecvMsgSize(maxMessageBytes), grpc.MaxSendMsgSize(maxMessageBytes)}
+	sopts := []grpc.ServerOption{grpc.MaxRecvMsgSize(maxRequestBytes), grpc.MaxSendMsgSize(maxMessageBytes),
+		grpc.MaxHeaderListSize(maxHeaderBytes), grpc.MaxConcurrentStreams(maxStreamsPerConn),
+		grpc.ConnectionTimeout(10 * time.Second),
+		grpc.KeepaliveEnforcementPolicy(keepalive.EnforcementPolicy{MinTime: 10 * time.Second, PermitWithoutStream: true}),
+		grpc.ChainUnaryInterceptor(gm.Unary, guard.Unary), grpc.ChainStreamInterceptor(gm.Stream, guard.Stream)}
 	if cfg.Security.TLSCert != "" || cfg.Security.TLSKey != "" {
 		creds, err := serverTLS(cfg.Security)
 		if err != nil {
@@ -145,14 +180,16 @@ func Run(ctx context.Context, o Options) error {
 		}
 	}
 	mux := http.NewServeMux()
-	mux.Handle("/metrics", promhttp.HandlerFor(reg, promhttp.HandlerOpts{Registry: reg}))
-	hsrv := &http.Server{Handler: mux, ReadHeaderTimeout: 10 * time.Second}
+	mux.Handle("/metrics", promhttp.HandlerFor(reg, promhttp.HandlerOpts{Registry: reg, MaxRequestsInFlight: 8, Timeout: 10 * time.Second}))
+	hsrv := &http.Server{Handler: mux, ReadHeaderTimeout: 10 * time.Second, ReadTimeout: 10 * time.Second,
+		WriteTimeout: 30 * time.Second, MaxHeaderBytes: 1 << 16}
 
 	engCtx, stopEng := context.WithCancel(context.Background())
 	errs := make(chan error, 2)
 	var engDone sync.WaitGroup
-	engDone.Add(1)
+	engDone.Add(2)
 	go func() { defer engDone.Done(); eng.Run(engCtx) }()
+	go func() { defer engDone.Done(); mon.Run(engCtx) }()
 	go func() { errs <- gs.Serve(lis) }()
 	go func() {
 		if err := hsrv.Serve(mlis); !errors.Is(err, http.ErrServerClosed) {
@@ -172,6 +209,7 @@ func Run(ctx context.Context, o Options) error {
 		log.Error("server failed", "err", runErr)
 	}
 	hs.Shutdown()
+	drain(eng, cfg.Safety.ShutdownTimeout, log)
 	stopEng()
 	engDone.Wait()
 	if !cfg.Safety.KeepHighVoltageOnShutdown {
@@ -195,6 +233,64 @@ func Run(ctx context.Context, o Options) error {
 	_ = hsrv.Shutdown(shutCtx)
 	cancel()
 	return runErr
+}
+
+// drain lets the running scan stop after its current point, waiting at most the shutdown timeout; after
+// that the point in progress is cut short. Either way every durable point is kept.
+func drain(eng *engine.Engine, limit time.Duration, log *slog.Logger) {
+	if limit <= 0 {
+		limit = defaultShutdownTime
+	}
+	if rec, ok := eng.Running(); ok {
+		log.Info("stopping the running scan after its current point", "scan", rec.ID, "wait_at_most", limit)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), limit)
+	defer cancel()
+	if err := eng.Drain(ctx); err != nil {
+		log.Warn("the current point did not end in time; cutting it short (earlier points are stored)", "waited", limit)
+	}
+}
+
+// scanLister adapts a function to metrics.Scans.
+type scanLister func(after string, limit int, states []scan.State) ([]scan.Record, string)
+
+func (f scanLister) List(after string, limit int, states []scan.State) ([]scan.Record, string) {
+	return f(after, limit, states)
+}
+
+// callerLimits applies the defaults to the configured per-caller limits; negative values switch a limit off.
+func callerLimits(l config.Limits) auth.Limits {
+	out := auth.Limits{RequestsPerSecond: l.RequestsPerSecond, Burst: l.RequestBurst, Streams: l.StreamsPerClient}
+	if out.RequestsPerSecond == 0 {
+		out.RequestsPerSecond = defaultRate
+	}
+	if out.Burst == 0 {
+		out.Burst = defaultBurst
+	}
+	if out.Streams == 0 {
+		out.Streams = defaultStreams
+	}
+	return out
+}
+
+// loadTokens reads the tokens file, if one is configured, and says what protects the API.
+func loadTokens(cfg *config.File, log *slog.Logger) (*auth.Tokens, error) {
+	sec := cfg.Security
+	if sec.Tokens == "" {
+		if host, _, _ := net.SplitHostPort(cfg.Listen); !isLoopback(host) && sec.TLSClientCA == "" {
+			log.Warn("no tokens file and no client certificates: everyone who can reach the daemon can control the instrument", "listen", cfg.Listen)
+		}
+		return nil, nil
+	}
+	t, err := auth.LoadTokens(sec.Tokens)
+	if err != nil {
+		return nil, err
+	}
+	if host, _, _ := net.SplitHostPort(cfg.Listen); !isLoopback(host) && sec.TLSCert == "" {
+		log.Warn("INSECURE: bearer tokens travel unencrypted on the network (no TLS)", "listen", cfg.Listen)
+	}
+	log.Info("tokens loaded; calls need a bearer token", "file", sec.Tokens, "tokens", t.Len())
+	return t, nil
 }
 
 // instrumentConfig builds the effective instrument configuration: the driver's description, then the file.
