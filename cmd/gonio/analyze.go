@@ -164,12 +164,17 @@ func (f *analyzeFlags) run(a *app, c *client.Client, kind client.ResultKind, ids
 	return out, err
 }
 
-// showResult prints a result as JSON (one line) or as a table.
-func (a *app) showResult(r client.SavedResult) error {
-	if a.output == "json" {
-		return a.printJSON(r)
+func (a *app) showResult(r client.SavedResult) error { return writeResult(a.stdout, a.output, r) }
+
+// writeResult renders an analysis result as a table, one JSON object, or CSV.
+func writeResult(w io.Writer, format string, r client.SavedResult) error {
+	switch format {
+	case outJSON:
+		return writeJSON(w, r)
+	case outCSV:
+		return writeResultCSV(w, r)
 	}
-	tw := tabwriter.NewWriter(a.stdout, 0, 4, 2, ' ', 0)
+	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
 	switch {
 	case r.Peaks != nil:
 		fmt.Fprintf(tw, "scan %s, axis %s, %s profiles: %d peaks\n", r.ScanID, r.Peaks.Axis, r.Peaks.Shape, len(r.Peaks.Peaks))

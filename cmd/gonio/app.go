@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -33,6 +32,8 @@ const (
 type app struct {
 	addr                   string
 	output                 string
+	configPath, instrument string
+	cfg                    *clientConfig
 	token, tokenFile       string
 	tlsCA, tlsCert, tlsKey string
 	timeout                time.Duration
@@ -119,7 +120,9 @@ func (a *app) rootCommand() *cobra.Command {
 		Long: `gonio submits scans to goniod, follows them live, fetches their points as CSV or JSON,
 and steers the queue and the instrument.
 
-The daemon's address comes from --addr, else $GONIO_ADDR, else ` + client.DefaultAddr + `.`,
+Where the daemon is: --addr, else $GONIO_ADDR, else the configuration file (` + "`gonio help config-file`" + `),
+else ` + client.DefaultAddr + `. A lab with several instruments names them in the configuration file and picks
+one with --instrument NAME. Exit codes are listed by ` + "`gonio help exit-codes`" + `.`,
 		Example: `  gonio status
   gonio scan coupled --from 10 --to 55 --step 0.1 --dwell 1s --kv 30 --ma 0.8
   gonio fetch scan-000001 --format csv -o scan1.csv`,
@@ -127,61 +130,41 @@ The daemon's address comes from --addr, else $GONIO_ADDR, else ` + client.Defaul
 		SilenceErrors: true,
 	}
 	pf := root.PersistentFlags()
-	pf.StringVar(&a.addr, "addr", envOr("GONIO_ADDR", client.DefaultAddr), "goniod address host:port (env GONIO_ADDR)")
+	pf.StringVar(&a.addr, "addr", "", "goniod address host:port (env GONIO_ADDR; default "+client.DefaultAddr+")")
+	pf.StringVar(&a.instrument, "instrument", "", "instrument `name` from the configuration file (env GONIO_INSTRUMENT)")
+	pf.StringVar(&a.configPath, "config", "", "configuration `file` (env GONIO_CONFIG; default ~/.config/gonio/config.yaml)")
 	pf.StringVarP(&a.output, "output", "O", "table", "output format: table, json or csv (where data is printed)")
-	pf.StringVar(&a.tokenFile, "token-file", "", "file holding the bearer token (else env GONIO_TOKEN)")
+	pf.StringVar(&a.tokenFile, "token-file", "", "`file` holding the bearer token (env GONIO_TOKEN_FILE; or the token itself in GONIO_TOKEN)")
 	pf.StringVar(&a.tlsCA, "tls-ca", "", "connect with TLS, trusting this CA `file` (PEM)")
 	pf.StringVar(&a.tlsCert, "tls-cert", "", "client certificate `file` (PEM) for TLS")
 	pf.StringVar(&a.tlsKey, "tls-key", "", "client key `file` (PEM) for TLS")
-	pf.DurationVar(&a.timeout, "timeout", 30*time.Second, "time limit of each call (streams run until they end)")
+	pf.DurationVar(&a.timeout, "timeout", 0, "time limit of each call, default 30s (streams run until they end)")
 	root.AddCommand(
 		a.scanCommand(), a.watchCommand(), a.listCommand(), a.showCommand(), a.statusCommand(), a.fetchCommand(),
 		a.pauseCommand(), a.resumeCommand(), a.cancelCommand(), a.releaseCommand(),
 		a.moveCommand(), a.sourceCommand(), a.countCommand(), a.analyzeCommand(),
+		a.seriesCommand(), a.configCommand(), a.convertCommand(), a.plotCommand(), a.runCommand(),
 	)
+	root.AddCommand(helpTopics()...)
+	registerCompletions(a, root)
 	return root
 }
 
-func envOr(name, def string) string {
-	if v := os.Getenv(name); v != "" {
-		return v
-	}
-	return def
-}
-
-// connect makes a client from the global flags.
+// connect makes a client for the chosen instrument from the flags, environment and configuration file.
 func (a *app) connect() (*client.Client, error) {
-	switch a.output {
-	case "table", "json", "csv":
-	default:
-		return nil, usageError("--output %q: use table, json or csv", a.output)
+	if err := a.checkOutput(); err != nil {
+		return nil, err
 	}
-	opts := []client.Option{client.WithTimeout(a.timeout)}
-	token := os.Getenv("GONIO_TOKEN")
-	if a.tokenFile != "" {
-		b, err := os.ReadFile(a.tokenFile)
-		if err != nil {
-			return nil, fmt.Errorf("--token-file: %w", err)
-		}
-		token = strings.TrimSpace(string(b))
+	t, err := a.resolve("")
+	if err != nil {
+		return nil, err
 	}
-	if token != "" {
-		opts = append(opts, client.WithToken(token))
-	}
-	if a.tlsCA != "" || a.tlsCert != "" || a.tlsKey != "" {
-		opts = append(opts, client.WithTLS(a.tlsCA, a.tlsCert, a.tlsKey))
-	}
-	return client.New(a.addr, opts...)
+	return a.dial(t)
 }
 
 // printJSON writes v as one JSON line.
 func (a *app) printJSON(v any) error {
-	b, err := json.Marshal(v)
-	if err != nil {
-		return err
-	}
-	_, err = fmt.Fprintf(a.stdout, "%s\n", b)
-	return err
+	return writeJSON(a.stdout, v)
 }
 
 // isTerminal reports whether w is a terminal (for live, in-place output).

@@ -3,8 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"os"
-	"path/filepath"
 
 	"github.com/spf13/cobra"
 
@@ -24,6 +22,12 @@ JSON writes one object per point and line with the same names as keys.`,
   gonio fetch scan-000001 --format json | head`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			if format == "" {
+				format = outCSV
+				if a.output == outJSON {
+					format = outJSON
+				}
+			}
 			if format != "csv" && format != "json" {
 				return usageError("--format %q: use csv or json", format)
 			}
@@ -32,37 +36,23 @@ JSON writes one object per point and line with the same names as keys.`,
 				return err
 			}
 			defer c.Close()
-			var w io.Writer = a.stdout
-			var tmp *os.File
-			if out != "" && out != "-" {
-				// Write beside the target and rename, so a failed fetch never leaves a partial file behind.
-				tmp, err = os.CreateTemp(filepath.Dir(out), "."+filepath.Base(out)+".part*")
-				if err != nil {
-					return err
-				}
-				defer os.Remove(tmp.Name())
-				w = tmp
-			}
-			n, err := c.Fetch(a.ctx, args[0], client.Format(format), w)
-			if err != nil {
-				if tmp != nil {
-					tmp.Close()
-				}
+			if out == "" || out == "-" {
+				_, err = c.Fetch(a.ctx, args[0], client.Format(format), a.stdout)
 				return err
 			}
-			if tmp != nil {
-				if err := tmp.Close(); err != nil {
-					return err
-				}
-				if err := os.Rename(tmp.Name(), out); err != nil {
-					return err
-				}
-				fmt.Fprintf(a.stderr, "%d points written to %s\n", n, out)
+			var n int
+			err = writeFileAtomic(out, func(w io.Writer) error {
+				n, err = c.Fetch(a.ctx, args[0], client.Format(format), w)
+				return err
+			})
+			if err != nil {
+				return err
 			}
+			fmt.Fprintf(a.stderr, "%d points written to %s\n", n, out)
 			return nil
 		},
 	}
-	cmd.Flags().StringVar(&format, "format", "csv", "csv or json")
+	cmd.Flags().StringVar(&format, "format", "", "csv or json (default: json with --output json, else csv)")
 	cmd.Flags().StringVarP(&out, "out", "o", "", "write to this file instead of stdout")
 	return cmd
 }

@@ -43,15 +43,22 @@ func (p *progress) eta() string {
 }
 
 func (p *progress) line() string {
-	pct := 0
+	frac := 0.0
 	if p.total > 0 {
-		pct = 100 * p.done / p.total
+		frac = float64(p.done) / float64(p.total)
 	}
-	s := fmt.Sprintf("%s %-11s %d/%d %3d%%  ETA %s  %.0f cps", p.id, p.state, p.done, p.total, pct, p.eta(), p.rate)
+	s := fmt.Sprintf("%s %-11s %s %3.0f%% %d/%d  ETA %s  %.0f cps", p.id, p.state, progressBar(frac, 20), 100*frac,
+		p.done, p.total, p.eta(), p.rate)
 	if p.lead != "" {
 		s += fmt.Sprintf("  %s %.3f°", p.lead, p.angle)
 	}
 	return s
+}
+
+// progressBar draws a fraction as a bar of width cells.
+func progressBar(frac float64, width int) string {
+	n := min(max(int(frac*float64(width)+0.5), 0), width)
+	return "[" + strings.Repeat("█", n) + strings.Repeat("░", width-n) + "]"
 }
 
 // update redraws when due.
@@ -83,32 +90,43 @@ func (p *progress) finish() {
 	}
 }
 
-// follow watches a scan until it ends. With points set, every point is printed to stdout (as a table row, or a
-// JSON/CSV line); state changes and progress go to stderr. The error reports a scan that failed or was cancelled.
-func (a *app) follow(c *client.Client, id string, points bool) error {
+// followView is how a followed scan is shown.
+type followView int
+
+const (
+	viewProgress followView = iota // a progress line on stderr (gonio scan, gonio run)
+	viewPoints                     // every point on stdout: a table row, a JSON or CSV line
+	viewPlot                       // a live text plot of the points, redrawn in place on the terminal
+)
+
+// follow watches a scan until it ends. State changes go to stderr (with viewPlot, into the plot's heading).
+// The error reports a scan that failed or was cancelled.
+func (a *app) follow(c *client.Client, id string, view followView) error {
 	st, err := c.Watch(a.ctx, id, 0)
 	if err != nil {
 		return err
 	}
-	pr := &progress{w: a.stderr, tty: isTerminal(a.stderr) && !points, id: id, t0: time.Now(), done0: -1}
+	pr := &progress{w: a.stderr, tty: isTerminal(a.stderr) && view == viewProgress, id: id, t0: time.Now(), done0: -1}
 	var printer *pointPrinter
+	var live *livePlot
 	var final *client.Scan
 	for ev := range st.C {
-		if ev.Scan != nil {
-			s := ev.Scan
-			if printer == nil && points {
+		if s := ev.Scan; s != nil {
+			if printer == nil && view == viewPoints {
 				printer = a.newPointPrinter(*s)
 			}
-			if s.State != pr.state || s.Reason != pr.reason {
-				if pr.state != "" || s.State != client.Running || points {
-					pr.finish()
-					msg := fmt.Sprintf("%s %s", id, s.State)
-					if s.Reason != "" {
-						msg += ": " + s.Reason
-					}
-					fmt.Fprintln(a.stderr, msg)
-					pr.drawn = false
+			if live == nil && view == viewPlot {
+				live = newLivePlot(a.stdout, *s)
+			}
+			if (s.State != pr.state || s.Reason != pr.reason) && view != viewPlot &&
+				(pr.state != "" || s.State != client.Running || view == viewPoints) {
+				pr.finish()
+				msg := fmt.Sprintf("%s %s", id, s.State)
+				if s.Reason != "" {
+					msg += ": " + s.Reason
 				}
+				fmt.Fprintln(a.stderr, msg)
+				pr.drawn = false
 			}
 			pr.state, pr.reason, pr.total, pr.done = s.State, s.Reason, s.PointsTotal, s.PointsDone
 			if pr.done0 < 0 {
@@ -117,6 +135,10 @@ func (a *app) follow(c *client.Client, id string, points bool) error {
 			if ev.End {
 				final = s
 			}
+			if live != nil {
+				live.status = pr.line()
+				live.draw(ev.End)
+			}
 			continue
 		}
 		if p := ev.Point; p != nil {
@@ -124,16 +146,21 @@ func (a *app) follow(c *client.Client, id string, points bool) error {
 			if len(p.Axes) > 0 {
 				pr.lead, pr.angle = p.Axes[0].Name, p.Axes[0].Actual
 			}
-			if points {
+			switch view {
+			case viewPoints:
 				if err := printer.print(*p); err != nil {
 					return err
 				}
-			} else {
+			case viewPlot:
+				live.add(*p)
+				live.status = pr.line()
+				live.draw(false)
+			default:
 				pr.update(false)
 			}
 		}
 	}
-	if !points {
+	if view == viewProgress {
 		pr.update(true)
 		pr.finish()
 	}

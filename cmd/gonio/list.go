@@ -1,9 +1,8 @@
 package main
 
 import (
-	"encoding/csv"
 	"fmt"
-	"strconv"
+	"io"
 	"text/tabwriter"
 
 	"github.com/spf13/cobra"
@@ -56,29 +55,29 @@ func (a *app) listCommand() *cobra.Command {
 	return cmd
 }
 
-func (a *app) printScans(scans []client.Scan) error {
-	switch a.output {
-	case "json":
+func (a *app) printScans(scans []client.Scan) error { return writeScans(a.stdout, a.output, scans) }
+
+// writeScans renders scans as a table, one JSON array, or CSV.
+func writeScans(w io.Writer, format string, scans []client.Scan) error {
+	switch format {
+	case outJSON:
 		out := make([]scanView, len(scans))
 		for i, s := range scans {
 			out[i] = viewOf(s)
 		}
-		return a.printJSON(out)
-	case "csv":
-		w := csv.NewWriter(a.stdout)
-		_ = w.Write([]string{"id", "state", "kind", "points_done", "points_total", "range", "label", "created"})
-		for _, s := range scans {
-			_ = w.Write([]string{s.ID, string(s.State), string(s.Request.Kind), strconv.Itoa(s.PointsDone),
-				strconv.Itoa(s.PointsTotal), describeRange(s.Request), s.Request.Label, s.Created.Format("2006-01-02T15:04:05Z07:00")})
-		}
-		w.Flush()
-		return w.Error()
+		return writeJSON(w, out)
+	case outCSV:
+		return writeScansCSV(w, scans)
 	}
-	tw := tabwriter.NewWriter(a.stdout, 0, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "ID\tSTATE\tKIND\tPOINTS\tRANGE\tLABEL\tCREATED")
+	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "ID\tSTATE\tKIND\tPOINTS\tRANGE\tTUBE\tLABEL\tCREATED")
 	for _, s := range scans {
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%d/%d\t%s\t%s\t%s\n", s.ID, s.State, s.Request.Kind, s.PointsDone, s.PointsTotal,
-			describeRange(s.Request), s.Request.Label, s.Created.Local().Format("2006-01-02 15:04"))
+		tube := "-"
+		if src := s.Request.Source; src != nil {
+			tube = fmt.Sprintf("%g kV %g mA", src.KV, src.MA)
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%d/%d\t%s\t%s\t%s\t%s\n", s.ID, s.State, s.Request.Kind, s.PointsDone, s.PointsTotal,
+			describeRange(s.Request), tube, s.Request.Label, s.Created.Local().Format("2006-01-02 15:04"))
 	}
 	return tw.Flush()
 }

@@ -29,15 +29,13 @@ e.g. park the detector at 2θ before a rocking curve of the crystal.`,
 			if err != nil {
 				return err
 			}
-			if a.output == "json" {
-				return a.printJSON(stateViewOf(s))
-			}
+			summary := ""
 			for _, ax := range s.Axes {
 				if ax.Name == args[0] {
-					fmt.Fprintf(a.stdout, "%s at %.4f°\n", ax.Name, ax.Position)
+					summary = fmt.Sprintf("%s at %.4f°", ax.Name, ax.Position)
 				}
 			}
-			return nil
+			return a.printState(s, summary)
 		},
 	}
 }

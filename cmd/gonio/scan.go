@@ -85,7 +85,7 @@ func (a *app) submit(cmd *cobra.Command, f *scanFlags, r client.ScanRequest) err
 			return nil
 		}
 		for _, id := range s.ScanIDs {
-			if err := a.follow(c, id, false); err != nil {
+			if err := a.follow(c, id, viewProgress); err != nil {
 				return err
 			}
 		}
@@ -105,7 +105,7 @@ func (a *app) submit(cmd *cobra.Command, f *scanFlags, r client.ScanRequest) err
 	if f.detach {
 		return nil
 	}
-	return a.follow(c, s.ID, false)
+	return a.follow(c, s.ID, viewProgress)
 }
 
 func (a *app) scanCommand() *cobra.Command {

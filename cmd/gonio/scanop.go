@@ -21,13 +21,9 @@ func (a *app) scanOp(id, op string) error {
 	if err != nil {
 		return err
 	}
-	if a.output == "json" {
-		return a.printJSON(viewOf(s))
-	}
 	msg := fmt.Sprintf("%s %s", s.ID, s.State)
 	if s.State == client.Running {
 		msg += " (" + op + " takes effect after the current point)"
 	}
-	_, err = fmt.Fprintln(a.stdout, msg)
-	return err
+	return a.printScan(s, msg)
 }

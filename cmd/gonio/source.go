@@ -46,11 +46,7 @@ scan runs; switching it off is always allowed (a running scan then pauses).`,
 			if err != nil {
 				return err
 			}
-			if a.output == "json" {
-				return a.printJSON(stateViewOf(s))
-			}
-			_, err = fmt.Fprintf(a.stdout, "tube %g kV, %g mA, high voltage %s\n", s.KV, s.MA, onOff(s.HighVoltage))
-			return err
+			return a.printState(s, fmt.Sprintf("tube %g kV, %g mA, high voltage %s", s.KV, s.MA, onOff(s.HighVoltage)))
 		},
 	}
 	cmd.Flags().Float64Var(&kv, "kv", 0, "tube voltage, kV")
