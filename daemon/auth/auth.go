@@ -19,7 +19,7 @@ const (
 	// Operator controls the instrument: scans, queue operations, moves, the X-ray source, single counts,
 	// saving analysis results.
 	Operator
-	// Admin changes the instrument configuration (alignment offsets stored in it).
+	// Admin changes the stored instrument configuration (alignment offsets stored in it).
 	Admin
 )
 

@@ -91,14 +91,18 @@ func TestGuardRoles(t *testing.T) {
 		{"viewer reads", viewerToken, goniodv1.Scans_GetScan_FullMethodName, codes.OK, "ana"},
 		{"viewer submits", viewerToken, submit, codes.PermissionDenied, ""},
 		{"operator submits", operatorToken, submit, codes.OK, "bo"},
-		{"operator aligns", operatorToken, goniodv1.Instrument_Align_FullMethodName, codes.PermissionDenied, ""},
-		{"admin aligns", adminToken, goniodv1.Instrument_Align_FullMethodName, codes.OK, "cy"},
+		{"operator stores an alignment", operatorToken, goniodv1.Instrument_Align_FullMethodName, codes.PermissionDenied, ""},
+		{"admin stores an alignment", adminToken, goniodv1.Instrument_Align_FullMethodName, codes.OK, "cy"},
 		{"unknown method", adminToken, "/goniod.v1.Scans/Unlisted", codes.PermissionDenied, ""},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
 			g, logs, _ := newTestGuard(t, true, Limits{})
-			seen, err := unary(g, callCtx(c.token), c.method, &goniodv1.SubmitScanRequest{})
+			var req any = &goniodv1.SubmitScanRequest{}
+			if c.method == goniodv1.Instrument_Align_FullMethodName {
+				req = &goniodv1.AlignRequest{Store: true}
+			}
+			seen, err := unary(g, callCtx(c.token), c.method, req)
 			if status.Code(err) != c.code {
 				t.Fatalf("got %v, want %v", err, c.code)
 			}

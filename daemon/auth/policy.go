@@ -17,7 +17,7 @@ var methodRoles = map[string]Role{
 	goniodv1.Instrument_Move_FullMethodName:       Operator,
 	goniodv1.Instrument_SetSource_FullMethodName:  Operator,
 	goniodv1.Instrument_Count_FullMethodName:      Operator,
-	goniodv1.Instrument_Align_FullMethodName:      Admin,
+	goniodv1.Instrument_Align_FullMethodName:      Operator, // Admin to store the offsets (see Required)
 
 	goniodv1.Scans_SubmitScan_FullMethodName:   Operator,
 	goniodv1.Scans_SubmitSeries_FullMethodName: Operator,
@@ -49,8 +49,11 @@ var serviceRoles = map[string]Role{
 	"grpc.reflection.v1alpha.ServerReflection": Viewer,
 }
 
-// saver is a request that may ask to store its result.
+// saver is a request that may ask to store its result (analysis).
 type saver interface{ GetSave() bool }
+
+// storer is a request that may ask to change the stored instrument configuration (alignment).
+type storer interface{ GetStore() bool }
 
 // Required returns the role a call of fullMethod ("/package.Service/Method") with request req needs; ok is
 // false for a method no policy covers. req may be nil (streams are authorised before their request arrives).
@@ -66,6 +69,9 @@ func Required(fullMethod string, req any) (role Role, ok bool) {
 	}
 	if s, isSaver := req.(saver); isSaver && s.GetSave() && role < Operator {
 		role = Operator
+	}
+	if s, isStorer := req.(storer); isStorer && s.GetStore() {
+		role = Admin
 	}
 	return role, true
 }

@@ -3,18 +3,21 @@
 package servertest
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"io"
 	"log/slog"
 	"net"
 	"os"
+	"sync"
 	"testing"
 	"time"
 
 	"goniod/client"
 	"goniod/daemon/config"
 	"goniod/daemon/server"
+	"goniod/driver"
 
 	_ "goniod/sim" // the "sim" driver
 )
@@ -26,6 +29,27 @@ type Daemon struct {
 	Client            *client.Client
 	cancel            context.CancelFunc
 	done              chan error
+	logs              *syncBuffer
+}
+
+// Logs returns everything the daemon has logged so far (text format).
+func (d *Daemon) Logs() string { return d.logs.String() }
+
+type syncBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuffer) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
 }
 
 // Option changes the daemon's configuration before it starts.
@@ -50,6 +74,13 @@ func WithConfig(fn func(*config.File)) Option { return Option(fn) }
 // ends. Logs go to the test log when GONIOD_TEST_LOG is set, else nowhere.
 func Start(t testing.TB, opts ...Option) *Daemon {
 	t.Helper()
+	return StartOn(t, nil, opts...)
+}
+
+// StartOn is Start on an instrument the test opened and holds (e.g. a *sim.Instrument, to open its door);
+// nil opens the configured driver. The test closes the instrument.
+func StartOn(t testing.TB, inst driver.Instrument, opts ...Option) *Daemon {
+	t.Helper()
 	cfg := &config.File{Driver: "sim", Data: t.TempDir()}
 	WithSim("speed", 10000.0)(cfg)
 	for _, o := range opts {
@@ -64,16 +95,17 @@ func Start(t testing.TB, opts ...Option) *Daemon {
 		t.Fatal(err)
 	}
 	cfg.Listen, cfg.MetricsListen = lis.Addr().String(), mlis.Addr().String()
-	var w io.Writer = io.Discard
+	logs := &syncBuffer{}
+	var w io.Writer = logs
 	if os.Getenv("GONIOD_TEST_LOG") != "" {
-		w = testWriter{t}
+		w = io.MultiWriter(logs, testWriter{t})
 	}
 	ctx, cancel := context.WithCancel(context.Background())
-	d := &Daemon{Addr: cfg.Listen, MetricsAddr: cfg.MetricsListen, Data: cfg.Data, cancel: cancel, done: make(chan error, 1)}
+	d := &Daemon{Addr: cfg.Listen, MetricsAddr: cfg.MetricsListen, Data: cfg.Data, cancel: cancel, done: make(chan error, 1), logs: logs}
 	ready := make(chan struct{})
 	go func() {
 		d.done <- server.Run(ctx, server.Options{Config: cfg, Version: "test", Log: slog.New(slog.NewTextHandler(w, nil)),
-			Listener: lis, MetricsListener: mlis, Ready: func(string, string) { close(ready) }})
+			Listener: lis, MetricsListener: mlis, Instrument: inst, Ready: func(string, string) { close(ready) }})
 	}()
 	select {
 	case <-ready:
