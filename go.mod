@@ -3,9 +3,11 @@ module goniod
 go 1.26.0
 
 require (
+	github.com/creack/pty v1.1.24
 	github.com/prometheus/client_golang v1.25.0
 	github.com/spf13/cobra v1.10.2
 	github.com/spf13/pflag v1.0.9
+	go.bug.st/serial v1.8.0
 	go.yaml.in/yaml/v3 v3.0.6
 	golang.org/x/sys v0.50.0
 	gonum.org/v1/gonum v0.17.0

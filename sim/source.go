@@ -77,6 +77,10 @@ func (in *Instrument) Feed(context.Context) error {
 	return nil
 }
 
+// WatchdogTime is the host silence after which high voltage goes off (zero or negative: no watchdog), in host
+// (wall) time.
+func (in *Instrument) WatchdogTime() time.Duration { return in.cfg.Watchdog }
+
 // WatchdogPeriod is a third of the watchdog time. Both are host (wall) time, whatever the clock's speed.
 func (in *Instrument) WatchdogPeriod() time.Duration {
 	if in.cfg.Watchdog <= 0 {
