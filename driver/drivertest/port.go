@@ -139,7 +139,9 @@ type Recorder struct {
 }
 
 // NewRecorder records the conversation on p under the given transcript name.
-func NewRecorder(p Port, name string) *Recorder { return &Recorder{Port: p, tr: Transcript{Name: name}} }
+func NewRecorder(p Port, name string) *Recorder {
+	return &Recorder{Port: p, tr: Transcript{Name: name}}
+}
 
 func (r *Recorder) Write(b []byte) (int, error) {
 	n, err := r.Port.Write(b)

@@ -147,4 +147,6 @@ func (f Fault) String() string {
 }
 
 // affectsReply reports whether the fault changes the next reply rather than acting at once.
-func (f Fault) affectsReply() bool { return f.Action == Stall || f.Action == Mute || f.Action == Garble }
+func (f Fault) affectsReply() bool {
+	return f.Action == Stall || f.Action == Mute || f.Action == Garble
+}

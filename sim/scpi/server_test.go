@@ -294,7 +294,7 @@ func TestImmediateCommands(t *testing.T) {
 func TestPacing(t *testing.T) {
 	s := serve(t, newInstrument(t, sim.Config{}), Options{Baud: 9600})
 	const cmd, reply = "SYST:ECHO? 123456789", "123456789" // 21 + 10 bytes with their LFs
-	wire := time.Duration(21+10) * 10 * time.Second / 9600   // about 32 ms
+	wire := time.Duration(21+10) * 10 * time.Second / 9600 // about 32 ms
 	s.host.ask(cmd)
 	for range 3 {
 		start := time.Now()
