@@ -17,7 +17,7 @@ its own:
 
   name: LiF batch 7 qualification        # shown while the plan runs
   label: LiF batch 7                      # stored with every scan (also: operator, note)
-  dwell: 1s                               # counting time per point
+  dwell: 1s                               # counting time per point (default 1s)
   tube: {kv: 30, ma: 0.8}                 # tube setting (switches high voltage on for the scan)
   scans:
     - coupled: {from: 10, to: 55, step: 0.1}       # θ–2θ; lead: AXIS to step another axis
@@ -98,7 +98,7 @@ func parsePlan(file string, data []byte) (*plan, error) {
 		return nil, r.err()
 	}
 	p := &plan{}
-	var defaults planSettings
+	defaults := planSettings{dwell: time.Second}
 	var scans *yaml.Node
 	fields := defaults.fields(r)
 	fields["name"] = func(v *yaml.Node, path string) { p.name = r.str(v, path) }

@@ -64,6 +64,13 @@ func (a *app) runPlan(file string, p *plan, detach bool) error {
 		return err
 	}
 	defer c.Close()
+	cfg, err := c.Config(a.ctx)
+	if err != nil {
+		return err
+	}
+	if e, fields := preflight(p, cfg); len(fields) > 0 {
+		return planRefusal(file, e, &client.Error{Kind: client.ErrInvalid, Message: "refused", Fields: fields}, 0)
+	}
 	var done []submittedEntry
 	for _, e := range p.entries {
 		s, err := submitEntry(a.ctx, c, e)
@@ -140,8 +147,11 @@ func (a *app) cancelSubmitted(c *client.Client, done []submittedEntry) int {
 // planRefusal names the plan line of each refused field.
 func planRefusal(file string, e planEntry, err error, cancelled int) error {
 	var b strings.Builder
-	fmt.Fprintf(&b, "%s:%d: scan refused by the daemon", file, e.line)
-	if cancelled > 0 {
+	fmt.Fprintf(&b, "%s:%d: scan refused", file, e.line)
+	switch {
+	case cancelled == 1:
+		b.WriteString(" (the scan of the plan already queued was cancelled)")
+	case cancelled > 1:
 		fmt.Fprintf(&b, " (the %d scans of the plan already queued were cancelled)", cancelled)
 	}
 	fields := client.FieldErrors(err)
@@ -171,9 +181,6 @@ func writePlan(w io.Writer, p *plan) error {
 	scans := 0
 	for _, e := range p.entries {
 		counting := e.scan.Dwell.String()
-		if e.scan.Dwell == 0 {
-			counting = "daemon default"
-		}
 		if e.scan.RelativeError > 0 {
 			counting = fmt.Sprintf("to %.3g, at most %s", e.scan.RelativeError, counting)
 		}

@@ -56,7 +56,7 @@ func (a *app) statusCommand() *cobra.Command {
 		Use:   "status",
 		Short: "Show the instrument: axes, tube, interlock, link, count rate, running scan",
 		Long: `Shows the daemon's view of the instrument. --follow keeps showing it as it changes (redrawn in place on a
-terminal, one line per update otherwise) until interrupted. --all shows every instrument of the configuration
+terminal, one line per change otherwise) until interrupted. --all shows every instrument of the configuration
 file side by side; an instrument that does not answer is marked unreachable and the others are still shown.`,
 		Example: `  gonio status
   gonio status --output json
@@ -161,6 +161,7 @@ func (a *app) followState(c *client.Client, every time.Duration) error {
 	}
 	scr := &screen{w: a.stdout, tty: isTerminal(a.stdout)}
 	var axes []string
+	var lastLine string
 	for s := range st.C {
 		switch {
 		case a.output == outJSON:
@@ -183,7 +184,12 @@ func (a *app) followState(c *client.Client, every time.Duration) error {
 				scr.redraw(b.String() + "updated " + s.Time.Local().Format("15:04:05") + " (Ctrl-C to stop)\n")
 			}
 		default:
-			_, err = fmt.Fprintln(a.stdout, stateLine(s))
+			// One line per change: the time alone changing is not news in a log.
+			line := stateLine(s)
+			if _, rest, _ := strings.Cut(line, "  "); rest != lastLine {
+				lastLine = rest
+				_, err = fmt.Fprintln(a.stdout, line)
+			}
 		}
 		if err != nil {
 			return err

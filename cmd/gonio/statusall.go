@@ -134,7 +134,7 @@ func writeStatusAll(w io.Writer, format string, all []instrumentStatus) error {
 	fmt.Fprintln(tw, "INSTRUMENT\tADDRESS\tLINK\tINTERLOCK\tTUBE\tRATE\tSCAN\tQUEUE\tAXES")
 	for _, s := range all {
 		if s.State == nil {
-			fmt.Fprintf(tw, "%s\t%s\t%s\t\t\t\t\t\t\n", s.Name, s.Addr, s.Error)
+			fmt.Fprintf(tw, "%s\t%s\t%s\n", s.Name, s.Addr, s.Error)
 			continue
 		}
 		st := *s.State

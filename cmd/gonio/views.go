@@ -2,6 +2,8 @@ package main
 
 import (
 	"fmt"
+	"maps"
+	"slices"
 	"strings"
 	"time"
 
@@ -81,9 +83,9 @@ func positionText(at map[string]float64) string {
 	if len(at) == 0 {
 		return ""
 	}
-	var parts []string
-	for k, v := range at {
-		parts = append(parts, fmt.Sprintf("%s=%g", k, v))
+	parts := make([]string, 0, len(at))
+	for _, k := range slices.Sorted(maps.Keys(at)) {
+		parts = append(parts, fmt.Sprintf("%s=%g", k, at[k]))
 	}
 	return " at " + strings.Join(parts, ",")
 }

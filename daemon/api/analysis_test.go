@@ -3,61 +3,19 @@ package api_test
 import (
 	"context"
 	"errors"
-	"io"
-	"log/slog"
 	"math"
-	"net"
 	"testing"
 	"time"
 
 	"goniod/client"
-	"goniod/daemon/config"
-	"goniod/daemon/server"
-
-	_ "goniod/sim" // the "sim" driver
+	"goniod/daemon/server/servertest"
 )
 
-// startDaemon runs goniod on the simulator (fast simulated time) with real gRPC on loopback and a temporary
-// data directory, and returns a connected client; both stop when the test ends.
+// startDaemon runs goniod on the simulator (fast simulated time, seed 7) with real gRPC on loopback and a
+// temporary data directory, and returns a connected client; both stop when the test ends.
 func startDaemon(t *testing.T) *client.Client {
 	t.Helper()
-	cfg := &config.File{Driver: "sim", Data: t.TempDir()}
-	if err := cfg.SetDriverField("sim", "speed", 10000.0); err != nil {
-		t.Fatal(err)
-	}
-	if err := cfg.SetDriverField("sim", "seed", int64(7)); err != nil {
-		t.Fatal(err)
-	}
-	lis, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	mlis, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	cfg.Listen, cfg.MetricsListen = lis.Addr().String(), mlis.Addr().String()
-	ctx, cancel := context.WithCancel(context.Background())
-	done, ready := make(chan error, 1), make(chan struct{})
-	go func() {
-		done <- server.Run(ctx, server.Options{Config: cfg, Version: "test", Log: slog.New(slog.NewTextHandler(io.Discard, nil)),
-			Listener: lis, MetricsListener: mlis, Ready: func(string, string) { close(ready) }})
-	}()
-	select {
-	case <-ready:
-	case err := <-done:
-		t.Fatalf("daemon did not start: %v", err)
-	}
-	c, err := client.New(cfg.Listen)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		c.Close()
-		cancel()
-		<-done
-	})
-	return c
+	return servertest.Start(t, servertest.WithSim("seed", int64(7))).Client
 }
 
 // runScan submits a scan and waits for it to end.
