@@ -134,7 +134,7 @@ func recordToProto(r scan.Record) *goniodv1.Scan {
 		Reason: r.Reason, PointsDone: uint32(r.PointsDone), PointsTotal: uint32(r.PointsTotal),
 		Created: timeProto(r.Created), Started: timeProto(r.Started), Ended: timeProto(r.Ended),
 		Info: &goniodv1.ScanInfo{
-			Instrument: r.Info.Instrument, Driver: r.Info.Driver, ConfigHash: r.Info.ConfigHash,
+			Instrument: r.Info.Instrument, Identity: r.Info.Identity, Driver: r.Info.Driver, ConfigHash: r.Info.ConfigHash,
 			DaemonVersion: r.Info.DaemonVersion, Axes: r.Info.Axes, Crystal: r.Info.Crystal,
 			CrystalDNm: r.Info.CrystalDNM, Anode: r.Info.Anode, DeadTimeS: r.Info.DeadTime.Seconds(), Channels: r.Info.Channels,
 		},
@@ -163,4 +163,12 @@ func configToProto(c instrument.Config) *goniodv1.InstrumentConfig {
 			ResolutionDeg: a.ResolutionDeg, ZeroOffsetDeg: a.ZeroOffsetDeg, Coupling: a.Coupling})
 	}
 	return p
+}
+
+func alignmentToProto(a engine.Alignment) *goniodv1.AlignResult {
+	out := &goniodv1.AlignResult{Stored: a.Stored, ScanIds: a.ScanIDs, Reference: a.Reference}
+	for _, o := range a.Offsets {
+		out.Offsets = append(out.Offsets, &goniodv1.AxisOffset{Axis: o.Axis, OffsetDeg: o.OffsetDeg, OffsetErrDeg: o.ErrDeg, PreviousOffsetDeg: o.PreviousDeg})
+	}
+	return out
 }

@@ -9,6 +9,7 @@ import (
 
 	"goniod/daemon/engine"
 	"goniod/daemon/instrument"
+	"goniod/daemon/scan"
 	"goniod/daemon/validate"
 	"goniod/driver"
 	goniodv1 "goniod/proto/goniod/v1"
@@ -117,6 +118,25 @@ func (s *InstrumentService) SetSource(ctx context.Context, req *goniodv1.SetSour
 		return nil, toStatus(err)
 	}
 	return s.state(), nil
+}
+
+// Align runs the alignment routine. It can take minutes on a real instrument: the caller's deadline should
+// allow for it; a caller that goes away stops it (high voltage off).
+func (s *InstrumentService) Align(ctx context.Context, req *goniodv1.AlignRequest) (*goniodv1.AlignResult, error) {
+	var es validate.Errors
+	r := engine.AlignRequest{Dwell: duration(&es, "dwell", req.GetDwell()), Store: req.GetStore(),
+		SearchDeg: req.GetSearchDeg(), Order: int(req.GetOrder())}
+	if err := es.Err(); err != nil {
+		return nil, toStatus(err)
+	}
+	if req.Source != nil {
+		r.Source = &scan.Source{KV: req.Source.GetKv(), MA: req.Source.GetMa()}
+	}
+	a, err := s.Engine.Align(ctx, r)
+	if err != nil {
+		return nil, toStatus(err)
+	}
+	return alignmentToProto(a), nil
 }
 
 func (s *InstrumentService) Count(ctx context.Context, req *goniodv1.CountRequest) (*goniodv1.CountResult, error) {

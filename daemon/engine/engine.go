@@ -50,6 +50,12 @@ type Engine struct {
 	version string
 	now     func() time.Time
 
+	// submitMu keeps the scans of one submission (a series) consecutive in the queue and in ID order.
+	submitMu sync.Mutex
+	// life is the context Run was given (guarded by mu): work started outside the queue, such as an
+	// alignment, ends with it.
+	life context.Context
+
 	mu      sync.Mutex
 	scans   map[string]*entry
 	ids     []string // creation order
@@ -63,6 +69,8 @@ type Engine struct {
 // entry is one scan known to the engine.
 type entry struct {
 	hub *hub
+	// saveMu orders the changes of the record with their saves.
+	saveMu sync.Mutex
 	// Requests from operators, read by the runner between points; guarded by Engine.mu.
 	pauseReq, cancelReq bool
 }
@@ -89,6 +97,9 @@ func New(o Options) (*Engine, error) {
 		}
 		e.scans[rec.ID] = &entry{hub: newHub(*rec, durable)}
 		e.ids = append(e.ids, rec.ID)
+	}
+	if err := e.applyStoredAlignment(); err != nil {
+		return nil, err
 	}
 	return e, nil
 }
@@ -146,94 +157,6 @@ func (e *Engine) lookup(id string) (*entry, error) {
 		return nil, fmt.Errorf("scan %q: %w", id, scan.ErrNotFound)
 	}
 	return en, nil
-}
-
-// info describes the instrument for a new scan's record.
-func (e *Engine) info(cfg *instrument.Config) scan.Info {
-	return scan.Info{
-		Instrument: cfg.Name, Driver: cfg.Driver, ConfigHash: cfg.Hash(), DaemonVersion: e.version,
-		Axes: cfg.AxisNames(), Channels: cfg.Channels, Crystal: cfg.Crystal, CrystalDNM: cfg.CrystalDNM,
-		Anode: cfg.Tube.Anode, DeadTime: cfg.DeadTime, Paralyzable: cfg.DeadTimeParalyzable,
-	}
-}
-
-// Submit validates a request and queues it. Invalid requests return validate errors; nothing is queued.
-func (e *Engine) Submit(r scan.Request) (scan.Record, error) {
-	recs, err := e.submit([]scan.Request{r}, "")
-	if err != nil {
-		return scan.Record{}, err
-	}
-	return recs[0], nil
-}
-
-// SeriesRecord is the stored form of a series.
-type SeriesRecord struct {
-	ID      string             `json:"id"`
-	ScanIDs []string           `json:"scan_ids"`
-	Request scan.SeriesRequest `json:"request"`
-}
-
-// SubmitSeries validates every scan of a series and queues them all, or none.
-func (e *Engine) SubmitSeries(sr scan.SeriesRequest) (SeriesRecord, error) {
-	cfg := e.ctl.Config()
-	if err := sr.Validate(&cfg); err != nil {
-		return SeriesRecord{}, err
-	}
-	id := e.store.NewSeriesID()
-	recs, err := e.submit(sr.Expand(), id)
-	if err != nil {
-		return SeriesRecord{}, err
-	}
-	out := SeriesRecord{ID: id, Request: sr}
-	for _, r := range recs {
-		out.ScanIDs = append(out.ScanIDs, r.ID)
-	}
-	if err := e.store.SaveSeries(id, out); err != nil {
-		return SeriesRecord{}, err
-	}
-	return out, nil
-}
-
-// GetSeries reads a series.
-func (e *Engine) GetSeries(id string) (SeriesRecord, error) {
-	var s SeriesRecord
-	err := e.store.LoadSeries(id, &s)
-	return s, err
-}
-
-func (e *Engine) submit(reqs []scan.Request, seriesID string) ([]scan.Record, error) {
-	cfg := e.ctl.Config()
-	plans := make([]*scan.Plan, len(reqs))
-	for i, r := range reqs {
-		p, err := scan.NewPlan(r, &cfg)
-		if err != nil {
-			if len(reqs) > 1 {
-				return nil, fmt.Errorf("series scan %d: %w", i, err)
-			}
-			return nil, err
-		}
-		plans[i] = p
-	}
-	table := goniodv1.NewPointTable(cfg.AxisNames(), cfg.Channels[1:])
-	var out []scan.Record
-	for i, r := range reqs {
-		rec := scan.Record{
-			ID: e.store.NewScanID(), SeriesID: seriesID, Request: r, State: scan.Queued,
-			PointsTotal: plans[i].Len(), Created: e.now().UTC(), Info: e.info(&cfg),
-		}
-		if err := e.store.Create(&rec, table.Header()); err != nil {
-			return out, fmt.Errorf("store: %w", err)
-		}
-		e.mu.Lock()
-		e.scans[rec.ID] = &entry{hub: newHub(rec, 0)}
-		e.ids = append(e.ids, rec.ID)
-		e.mu.Unlock()
-		e.log.Info("scan queued", "scan", rec.ID, "kind", r.Kind, "points", rec.PointsTotal, "series", seriesID)
-		e.obs.StateChanged(&rec)
-		out = append(out, rec)
-	}
-	e.signal()
-	return out, nil
 }
 
 // Get returns a scan's record.
@@ -297,84 +220,6 @@ func (e *Engine) Running() (scan.Record, bool) {
 		return scan.Record{}, false
 	}
 	return e.running.hub.record(), true
-}
-
-// setState changes a record's state, stores it and publishes it.
-func (e *Engine) setState(en *entry, mutate func(*scan.Record)) (scan.Record, error) {
-	rec := en.hub.record()
-	mutate(&rec)
-	if err := e.store.SaveRecord(&rec); err != nil {
-		return rec, err
-	}
-	en.hub.setRecord(rec)
-	e.obs.StateChanged(&rec)
-	return rec, nil
-}
-
-// Pause asks a running scan to stop after its current point.
-func (e *Engine) Pause(id string) (scan.Record, error) {
-	return e.request(id, "pause", func(en *entry) { en.pauseReq = true })
-}
-
-// Cancel cancels a scan: at once when it is not running, after the current point when it is.
-func (e *Engine) Cancel(id string) (scan.Record, error) {
-	return e.request(id, "cancel", func(en *entry) { en.cancelReq = true })
-}
-
-// request flags a running scan, or applies op at once to one that is not running.
-func (e *Engine) request(id, op string, flag func(*entry)) (scan.Record, error) {
-	en, err := e.lookup(id)
-	if err != nil {
-		return scan.Record{}, err
-	}
-	e.mu.Lock()
-	rec := en.hub.record()
-	if err := scan.Allow(op, rec.State); err != nil {
-		e.mu.Unlock()
-		return rec, err
-	}
-	if rec.State == scan.Running {
-		flag(en)
-		e.mu.Unlock()
-		e.log.Info(op+" requested", "scan", id)
-		return rec, nil
-	}
-	e.mu.Unlock()
-	rec, err = e.setState(en, func(r *scan.Record) {
-		r.State, r.Reason, r.Ended = scan.Cancelled, "cancelled by an operator", e.now().UTC()
-	})
-	e.log.Info("scan cancelled", "scan", id)
-	e.signal()
-	return rec, err
-}
-
-// Resume puts a paused or interrupted scan back into the queue; it continues from its next point.
-func (e *Engine) Resume(id string) (scan.Record, error) {
-	return e.requeue(id, "resume", "resumed by an operator")
-}
-
-// Release lets a held scan run.
-func (e *Engine) Release(id string) (scan.Record, error) {
-	return e.requeue(id, "release", "released by an operator")
-}
-
-func (e *Engine) requeue(id, op, reason string) (scan.Record, error) {
-	en, err := e.lookup(id)
-	if err != nil {
-		return scan.Record{}, err
-	}
-	e.mu.Lock()
-	rec := en.hub.record()
-	if err := scan.Allow(op, rec.State); err != nil {
-		e.mu.Unlock()
-		return rec, err
-	}
-	en.pauseReq, en.cancelReq = false, false
-	e.mu.Unlock()
-	rec, err = e.setState(en, func(r *scan.Record) { r.State, r.Reason = scan.Queued, reason })
-	e.log.Info("scan queued again", "scan", id, "op", op)
-	e.signal()
-	return rec, err
 }
 
 // ErrManual is returned when a manual operation meets a running or paused scan.

@@ -21,6 +21,9 @@ import (
 // Run executes queued scans one at a time, oldest first, until ctx ends. A paused scan holds the queue until it
 // is resumed or cancelled.
 func (e *Engine) Run(ctx context.Context) {
+	e.mu.Lock()
+	e.life = ctx
+	e.mu.Unlock()
 	for {
 		if en := e.next(); en != nil {
 			e.runScan(ctx, en)
@@ -99,7 +102,7 @@ func (e *Engine) execute(ctx context.Context, en *entry, log *slog.Logger) outco
 			r.Started = e.now().UTC()
 		}
 	}); err != nil {
-		return outcome{scan.Failed, "cannot store the scan record: " + err.Error()}
+		return storageFailure("cannot store the scan record", err)
 	}
 	log.Info("scan running", "from_point", app.Count(), "points", plan.Len())
 	hv, out := e.prepareSource(ctx, en, log)
@@ -161,7 +164,8 @@ func (e *Engine) prepareSource(ctx context.Context, en *entry, log *slog.Logger)
 	log.Info("high voltage on for the scan", "kv", src.KV, "ma", src.MA, "anode", cfg.Tube.Anode)
 	if rec.Source == nil {
 		if _, err := e.setState(en, func(r *scan.Record) { r.Source = src }); err != nil {
-			return true, &outcome{scan.Failed, "cannot store the scan record: " + err.Error()}
+			o := storageFailure("cannot store the scan record", err)
+			return true, &o
 		}
 	}
 	if rec.Request.Settle > 0 {
@@ -177,6 +181,8 @@ func (e *Engine) prepareSource(ctx context.Context, en *entry, log *slog.Logger)
 // (resumable), a daemon shutdown interrupts it, anything else fails it.
 func (e *Engine) fault(ctx context.Context, err error) outcome {
 	switch {
+	case errors.Is(context.Cause(ctx), errCallerGone):
+		return outcome{scan.Cancelled, "cancelled: " + errCallerGone.Error()}
 	case ctx.Err() != nil:
 		return outcome{scan.Interrupted, "the daemon is shutting down; resume to continue"}
 	case errors.Is(err, driver.ErrLinkDown):
@@ -187,6 +193,12 @@ func (e *Engine) fault(ctx context.Context, err error) outcome {
 		return outcome{scan.Failed, "the instrument refused: " + err.Error()}
 	}
 	return outcome{scan.Paused, "instrument error: " + err.Error() + "; resume to retry"}
+}
+
+// storageFailure stops a scan whose data directory failed: paused, so that it holds the queue (the next scan
+// would fail the same way) and can be resumed once the disk has room or is writable again.
+func storageFailure(what string, err error) outcome {
+	return outcome{scan.Paused, fmt.Sprintf("%s: %v; high voltage off; free space on (or repair) the data directory, then resume", what, err)}
 }
 
 // finish records how a scan ended and leaves the instrument safe: high voltage off unless a finished scan asked
@@ -287,7 +299,8 @@ func (r *pointRunner) point(ctx context.Context, i int) *outcome {
 	inDriver := time.Since(td)
 	p := r.build(i, targets, actual, counts)
 	if err := r.app.Append(p); err != nil {
-		return &outcome{scan.Paused, fmt.Sprintf("storing point %d failed: %v; every earlier point is intact; fix the data directory and resume", i, err)}
+		o := storageFailure(fmt.Sprintf("storing point %d failed (the %d points before it are intact)", i, i), err)
+		return &o
 	}
 	r.en.hub.publish(p)
 	rec := r.en.hub.record()
@@ -306,7 +319,7 @@ func (r *pointRunner) count(ctx context.Context) (driver.Counts, error) {
 	target := 1 / (req.RelativeError * req.RelativeError) // counts needed
 	slice := req.MinDwell
 	if slice <= 0 {
-		slice = max(req.Dwell/100, minSlice)
+		slice = max(req.Dwell/100, scan.MinSlice)
 	}
 	var total driver.Counts
 	for total.Gate < req.Dwell {
@@ -331,16 +344,13 @@ func (r *pointRunner) count(ctx context.Context) (driver.Counts, error) {
 		if n > 0 {
 			// Count the rest in one gate, from the rate seen so far.
 			need := time.Duration((target/n - 1) * float64(total.Gate))
-			slice = max(min(need, req.Dwell-total.Gate), minSlice)
+			slice = max(min(need, req.Dwell-total.Gate), scan.MinSlice)
 		} else {
 			slice *= 2
 		}
 	}
 	return total, nil
 }
-
-// minSlice is the shortest counting slice when counting to precision.
-const minSlice = 10 * time.Millisecond
 
 // build makes the point record.
 func (r *pointRunner) build(i int, targets []scan.Target, actual map[string]float64, c driver.Counts) *goniodv1.Point {

@@ -51,6 +51,10 @@ type Config struct {
 	MaxDwell  time.Duration `json:"max_dwell"`
 }
 
+// MaxZeroOffsetDeg bounds an axis's zero offset: a larger one means a goniometer that needs mechanical
+// adjustment, not a software correction.
+const MaxZeroOffsetDeg = 10
+
 // Defaults for what neither the driver nor the file sets.
 const (
 	DefaultMaxPoints = 1_000_000
@@ -183,7 +187,7 @@ func (c *Config) Validate() error {
 		if !(a.ResolutionDeg > 0 && a.ResolutionDeg < 10) {
 			es.Add(f+".resolution_deg", "%g must be within (0, 10)", a.ResolutionDeg)
 		}
-		es.Range(f+".zero_offset_deg", a.ZeroOffsetDeg, -10, 10, "°")
+		es.Range(f+".zero_offset_deg", a.ZeroOffsetDeg, -MaxZeroOffsetDeg, MaxZeroOffsetDeg, "°")
 		es.Finite(f+".coupling", a.Coupling)
 	}
 	if c.Tube.MaxKV <= 0 || math.IsNaN(c.Tube.MaxKV) {

@@ -11,6 +11,7 @@ import (
 	"sync"
 	"time"
 
+	"goniod/daemon/validate"
 	"goniod/driver"
 )
 
@@ -42,9 +43,10 @@ type Controller struct {
 
 	reqs chan request
 
-	mu    sync.Mutex
-	cfg   Config
-	state State
+	mu       sync.Mutex
+	cfg      Config
+	state    State
+	identity string // the instrument's answer to the last successful Identify
 }
 
 type request struct {
@@ -85,15 +87,34 @@ func (c *Controller) Config() Config {
 	return c.cfg
 }
 
-// SetZeroOffsets replaces axes' zero offsets (after alignment).
-func (c *Controller) SetZeroOffsets(offsets map[string]float64) {
+// SetZeroOffsets replaces axes' zero offsets (after alignment). The cached positions keep their motor angles
+// and change their read-back angles with the offsets. Offsets of unknown axes or beyond ±MaxZeroOffsetDeg are
+// refused, and then nothing changes.
+func (c *Controller) SetZeroOffsets(offsets map[string]float64) error {
 	c.mu.Lock()
 	defer c.mu.Unlock()
-	for i := range c.cfg.Axes {
-		if o, ok := offsets[c.cfg.Axes[i].Name]; ok {
-			c.cfg.Axes[i].ZeroOffsetDeg = o
+	var es validate.Errors
+	for name, o := range offsets {
+		if _, ok := c.cfg.CheckAxis(&es, "zero_offsets", name); ok {
+			es.Range("zero_offsets."+name, o, -MaxZeroOffsetDeg, MaxZeroOffsetDeg, "°")
 		}
 	}
+	if err := es.Err(); err != nil {
+		return err
+	}
+	// The config is shared by value with earlier callers: give the axes a new backing array.
+	c.cfg.Axes = append([]Axis(nil), c.cfg.Axes...)
+	for i, a := range c.cfg.Axes {
+		o, ok := offsets[a.Name]
+		if !ok {
+			continue
+		}
+		if p, ok := c.state.Positions[a.Name]; ok {
+			c.state.Positions[a.Name] = p + a.ZeroOffsetDeg - o
+		}
+		c.cfg.Axes[i].ZeroOffsetDeg = o
+	}
+	return nil
 }
 
 // State returns the cached state.
@@ -353,7 +374,7 @@ func (c *Controller) Status(ctx context.Context) (driver.Status, error) {
 	return st, nil
 }
 
-// Identify asks the instrument who it is.
+// Identify asks the instrument who it is and remembers the answer (see Identity).
 func (c *Controller) Identify(ctx context.Context) (string, error) {
 	var id string
 	err := c.do(ctx, func(ctx context.Context) error {
@@ -361,7 +382,19 @@ func (c *Controller) Identify(ctx context.Context) (string, error) {
 		id, err = c.drv.Identify(ctx)
 		return err
 	})
+	if err == nil {
+		c.mu.Lock()
+		c.identity = id
+		c.mu.Unlock()
+	}
 	return id, err
+}
+
+// Identity is the instrument's answer to the last successful Identify ("" before one).
+func (c *Controller) Identity() string {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return c.identity
 }
 
 // Halt stops the instrument and switches high voltage off at once, bypassing the queue of requests.

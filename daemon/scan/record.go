@@ -25,7 +25,9 @@ func (s State) Terminal() bool { return s == Done || s == Failed || s == Cancell
 
 // Info says where and how a scan was taken.
 type Info struct {
-	Instrument    string        `json:"instrument"`
+	Instrument string `json:"instrument"`
+	// Identity is the instrument's own identification line (maker, model, serial, firmware).
+	Identity      string        `json:"identity,omitempty"`
 	Driver        string        `json:"driver"`
 	ConfigHash    string        `json:"config_hash"`
 	DaemonVersion string        `json:"daemon_version"`
@@ -68,7 +70,7 @@ var (
 
 // transitions lists which operation moves a scan from which states.
 var transitions = map[string][]State{
-	"pause":   {Running},
+	"pause":   {Running, Queued},
 	"resume":  {Paused, Interrupted},
 	"cancel":  {Queued, Held, Paused, Interrupted, Running},
 	"release": {Held},
