@@ -144,6 +144,7 @@ one with --instrument NAME. Exit codes are listed by ` + "`gonio help exit-codes
 		a.pauseCommand(), a.resumeCommand(), a.cancelCommand(), a.releaseCommand(),
 		a.moveCommand(), a.sourceCommand(), a.countCommand(), a.analyzeCommand(),
 		a.seriesCommand(), a.configCommand(), a.convertCommand(), a.plotCommand(), a.runCommand(),
+		a.alignCommand(),
 	)
 	root.AddCommand(helpTopics()...)
 	registerCompletions(a, root)

@@ -182,6 +182,7 @@ type pointPrinter struct {
 	scan   client.Scan
 	header bool
 	buf    []byte
+	widths []int // of the table's axis columns
 }
 
 func (a *app) newPointPrinter(s client.Scan) *pointPrinter { return &pointPrinter{a: a, scan: s} }
@@ -208,13 +209,19 @@ func (pp *pointPrinter) print(p client.Point) error {
 		pp.header = true
 		var cols []string
 		for _, ax := range p.Axes {
-			cols = append(cols, fmt.Sprintf("%10s", ax.Name+"_deg"))
+			name := ax.Name + "_deg"
+			pp.widths = append(pp.widths, max(10, len(name)))
+			cols = append(cols, fmt.Sprintf("%*s", max(10, len(name)), name))
 		}
 		fmt.Fprintf(pp.a.stdout, "%6s %s %8s %10s %12s %10s\n", "index", strings.Join(cols, " "), "dwell_s", "counts", "rate_cps", "±err")
 	}
 	var cols []string
-	for _, ax := range p.Axes {
-		cols = append(cols, fmt.Sprintf("%10.4f", ax.Actual))
+	for i, ax := range p.Axes {
+		w := 10
+		if i < len(pp.widths) {
+			w = pp.widths[i]
+		}
+		cols = append(cols, fmt.Sprintf("%*.4f", w, ax.Actual))
 	}
 	_, err := fmt.Fprintf(pp.a.stdout, "%6d %s %8.3g %10d %12.2f %10.2f\n", p.Index, strings.Join(cols, " "), p.Dwell, p.Counts, p.Rate, p.RateErr)
 	return err
