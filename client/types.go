@@ -65,12 +65,14 @@ type ScanRequest struct {
 // ScanInfo says where and how a scan was taken.
 type ScanInfo struct {
 	Instrument, Driver, ConfigHash, DaemonVersion string
-	Axes                                          []string
-	Channels                                      []string
-	Crystal                                       string
-	CrystalDNM                                    float64
-	Anode                                         string
-	DeadTime                                      time.Duration
+	// Identity is the instrument's own identification line (maker, model, serial, firmware).
+	Identity   string
+	Axes       []string
+	Channels   []string
+	Crystal    string
+	CrystalDNM float64
+	Anode      string
+	DeadTime   time.Duration
 }
 
 // Scan is a scan's record.
@@ -186,7 +188,7 @@ func scanFromProto(p *goniodv1.Scan) Scan {
 		s.Ended = p.Ended.AsTime()
 	}
 	i := p.GetInfo()
-	s.Info = ScanInfo{Instrument: i.GetInstrument(), Driver: i.GetDriver(), ConfigHash: i.GetConfigHash(),
+	s.Info = ScanInfo{Instrument: i.GetInstrument(), Identity: i.GetIdentity(), Driver: i.GetDriver(), ConfigHash: i.GetConfigHash(),
 		DaemonVersion: i.GetDaemonVersion(), Axes: i.GetAxes(), Channels: i.GetChannels(), Crystal: i.GetCrystal(), CrystalDNM: i.GetCrystalDNm(),
 		Anode: i.GetAnode(), DeadTime: time.Duration(i.GetDeadTimeS() * float64(time.Second))}
 	return s
