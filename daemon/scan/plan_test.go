@@ -2,6 +2,7 @@ package scan
 
 import (
 	"math"
+	"strings"
 	"testing"
 	"time"
 
@@ -169,4 +170,140 @@ func equalTargets(a, b []Target) bool {
 		}
 	}
 	return true
+}
+
+// Every point of a stepped scan lies at start + i·step as decimal arithmetic gives it: the expectation is
+// computed in integer micro-degrees, independently of the planner's floating point.
+func TestPlanExactDecimalPositions(t *testing.T) {
+	cases := []struct {
+		name            string
+		req             Request
+		fromU, stepU, n int64 // lead axis, micro-degrees
+		lead            string
+		ratios          map[string]int64 // numerator over the lead's 1 (coupled) or 2 (led by twotheta)
+		leadDiv         int64
+	}{
+		{"coupled in θ up", Request{Kind: Coupled, FromDeg: 10, ToDeg: 55, StepDeg: 0.1}, 10_000_000, 100_000, 451, "theta",
+			map[string]int64{"theta": 1, "twotheta": 2}, 1},
+		{"coupled in θ down, 0.03°", Request{Kind: Coupled, FromDeg: 40.2, ToDeg: 10.2, StepDeg: 0.03}, 40_200_000, -30_000, 1001, "theta",
+			map[string]int64{"theta": 1, "twotheta": 2}, 1},
+		{"coupled in 2θ", Request{Kind: Coupled, Axis: "twotheta", FromDeg: 20, ToDeg: 110, StepDeg: 0.05}, 20_000_000, 50_000, 1801, "twotheta",
+			map[string]int64{"theta": 1, "twotheta": 2}, 2},
+		{"rocking curve", Request{Kind: AxisOnly, Axis: "theta", FromDeg: 21.5, ToDeg: 23.5, StepDeg: 0.002}, 21_500_000, 2_000, 1001, "theta",
+			map[string]int64{"theta": 1}, 1},
+		{"detector through zero", Request{Kind: AxisOnly, Axis: "twotheta", FromDeg: -1.5, ToDeg: 1.5, StepDeg: 0.02}, -1_500_000, 20_000, 151, "twotheta",
+			map[string]int64{"twotheta": 1}, 1},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			tc.req.Dwell = time.Second
+			p, err := NewPlan(tc.req, testConfig())
+			if err != nil {
+				t.Fatal(err)
+			}
+			if int64(p.Len()) != tc.n {
+				t.Fatalf("%d points, want %d", p.Len(), tc.n)
+			}
+			for i := int64(0); i < tc.n; i++ {
+				leadU := tc.fromU + i*tc.stepU
+				for _, tg := range p.Targets(int(i)) {
+					want := float64(leadU*tc.ratios[tg.Axis]/tc.leadDiv) / 1e6
+					if tg.Deg != want {
+						t.Fatalf("point %d: %s at %.12g°, want exactly %.12g°", i, tg.Axis, tg.Deg, want)
+					}
+				}
+			}
+		})
+	}
+}
+
+// The end is included when it lies within half a step of a point; the number of points follows
+// floor(span/step + 1/2) + 1 at both sides of the half-step boundary and for spans that are not exact in binary.
+func TestPlanEndWithinHalfAStep(t *testing.T) {
+	cases := []struct {
+		from, to, step float64
+		n              int
+		last           float64
+	}{
+		{0, 0.3, 0.1, 4, 0.3},      // 0.3/0.1 = 2.9999999999999996 in binary
+		{0, 0.7, 0.1, 8, 0.7},      // 6.999999999999999
+		{10, 10.049, 0.1, 1, 10},   // end below half a step: not reached
+		{10, 10.051, 0.1, 2, 10.1}, // end beyond half a step: the next point
+		{5, 4.951, 0.1, 1, 5},      // downwards, within half a step
+		{5, 4.949, 0.1, 2, 4.9},    // downwards, beyond half a step
+		{5, 4.9, 0.1, 2, 4.9},
+		{1, 2, 1, 2, 2},
+	}
+	for _, tc := range cases {
+		p, err := NewPlan(Request{Kind: AxisOnly, Axis: "theta", FromDeg: tc.from, ToDeg: tc.to, StepDeg: tc.step, Dwell: time.Second}, testConfig())
+		if err != nil {
+			t.Fatalf("%g→%g by %g: %v", tc.from, tc.to, tc.step, err)
+		}
+		if p.Len() != tc.n || p.Targets(p.Len() - 1)[0].Deg != tc.last {
+			t.Errorf("%g→%g by %g: %d points ending at %g°, want %d ending at %g°", tc.from, tc.to, tc.step, p.Len(), p.Targets(p.Len() - 1)[0].Deg, tc.n, tc.last)
+		}
+	}
+}
+
+// Timed and list scans, series and counting options are refused with the field and the allowed range named.
+func TestPlanRefusalsOfOtherKinds(t *testing.T) {
+	dwell := time.Second
+	cases := []struct {
+		name, field, says string
+		req               Request
+	}{
+		{"timed without points", "timed.points", "[1, 10000]", Request{Kind: Timed, Dwell: dwell}},
+		{"timed with too many points", "timed.points", "[1, 10000]", Request{Kind: Timed, Points: 10001, Dwell: dwell}},
+		{"timed at an unknown axis", "timed.at_deg", "axes are", Request{Kind: Timed, Points: 3, Dwell: dwell, At: map[string]float64{"omega": 1}}},
+		{"timed beyond a limit", "timed.at_deg.twotheta", "[-10, 170]", Request{Kind: Timed, Points: 3, Dwell: dwell, At: map[string]float64{"twotheta": 171}}},
+		{"timed at NaN", "timed.at_deg.theta", "finite", Request{Kind: Timed, Points: 3, Dwell: dwell, At: map[string]float64{"theta": math.NaN()}}},
+		{"empty list", "list.positions", "[1, 10000]", Request{Kind: List, Dwell: dwell}},
+		{"empty list position", "list.positions[1]", "empty", Request{Kind: List, Dwell: dwell, Positions: []map[string]float64{{"theta": 1}, {}}}},
+		{"list at an unknown axis", "list.positions[0]", "unknown axis", Request{Kind: List, Dwell: dwell, Positions: []map[string]float64{{"phi": 1}}}},
+		{"list at +Inf", "list.positions[0].chi", "finite", Request{Kind: List, Dwell: dwell, Positions: []map[string]float64{{"chi": math.Inf(1)}}}},
+		{"axis scan without an axis", "axis.axis", "axes are", Request{Kind: AxisOnly, FromDeg: 1, ToDeg: 2, StepDeg: 0.1, Dwell: dwell}},
+		{"axis step finer than its resolution", "axis.step_deg", "resolution of 0.01", Request{Kind: AxisOnly, Axis: "chi", FromDeg: 1, ToDeg: 2, StepDeg: 0.005, Dwell: dwell}},
+		{"tube power beyond the rating", "source", "30 W", Request{Kind: Timed, Points: 1, Dwell: dwell, Source: &Source{KV: 35, MA: 0.9}}},
+		{"tube voltage beyond the rating", "source.kv", "[0, 35] kV", Request{Kind: Timed, Points: 1, Dwell: dwell, Source: &Source{KV: 40, MA: 0.1}}},
+		{"tube current NaN", "source.ma", "finite", Request{Kind: Timed, Points: 1, Dwell: dwell, Source: &Source{KV: 20, MA: math.NaN()}}},
+		{"precision NaN", "counting.relative_error", "finite", Request{Kind: Timed, Points: 1, Dwell: dwell, RelativeError: math.NaN()}},
+		{"precision too fine", "counting.relative_error", "[0.0001, 0.5]", Request{Kind: Timed, Points: 1, Dwell: dwell, RelativeError: 1e-5}},
+		{"slice below the shortest", "counting.min_dwell", "10ms", Request{Kind: Timed, Points: 1, Dwell: dwell, RelativeError: 0.01, MinDwell: time.Millisecond}},
+		{"slice without precision", "counting.min_dwell", "relative_error", Request{Kind: Timed, Points: 1, Dwell: dwell, MinDwell: 100 * time.Millisecond}},
+		{"settle beyond an hour", "settle", "[0s, 1h]", Request{Kind: Timed, Points: 1, Dwell: dwell, Settle: 2 * time.Hour}},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := NewPlan(tc.req, testConfig())
+			checkRefusal(t, err, tc.field, tc.says)
+		})
+	}
+	series := []struct {
+		name, field, says string
+		sr                SeriesRequest
+	}{
+		{"empty series", "series.sources", "at least one", SeriesRequest{}},
+		{"series voltage beyond the rating", "series.sources[1].kv", "[0, 35] kV", SeriesRequest{Sources: []Source{{12, 0.5}, {50, 0.5}}}},
+		{"series power beyond the rating", "series.sources[2]", "30 W", SeriesRequest{Sources: []Source{{12, 1}, {20, 1}, {35, 1}}}},
+		{"series settle negative", "series.settle", "[0s, 1h]", SeriesRequest{Sources: []Source{{12, 1}}, Settle: -time.Second}},
+		{"series too long", "series.sources", "maximum of 100", SeriesRequest{Sources: make([]Source, 101)}},
+	}
+	for _, tc := range series {
+		t.Run(tc.name, func(t *testing.T) {
+			checkRefusal(t, tc.sr.Validate(testConfig()), tc.field, tc.says)
+		})
+	}
+}
+
+func checkRefusal(t *testing.T, err error, field, says string) {
+	t.Helper()
+	for _, f := range validate.Fields(err) {
+		if f.Field == field {
+			if !strings.Contains(f.Reason, says) {
+				t.Errorf("%s: %q does not say %q", field, f.Reason, says)
+			}
+			return
+		}
+	}
+	t.Errorf("refusal %v does not name %s", err, field)
 }
