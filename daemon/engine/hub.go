@@ -2,6 +2,7 @@ package engine
 
 import (
 	"sync"
+	"time"
 
 	"goniod/daemon/scan"
 	goniodv1 "goniod/proto/goniod/v1"
@@ -15,6 +16,11 @@ const ringSize = 4096
 // in its place among the points; one further behind sees the latest changes only.
 const historySize = 64
 
+// wakeInterval is the shortest time between two wake-ups of the watchers for new points: the first point after
+// a quiet spell wakes them at once, later ones are gathered for at most this long. At high point rates this
+// spares each watcher a wake-up per point, which with many watchers would take the processor from the scan.
+const wakeInterval = 2 * time.Millisecond
+
 // hub publishes one scan's durable points and state changes to any number of watchers. The publisher never
 // waits for a watcher: each watcher pulls at its own pace and wakes on a channel that is closed at every change.
 type hub struct {
@@ -25,6 +31,9 @@ type hub struct {
 	version uint64            // bumped at every state change
 	history []change          // the latest state changes, oldest first
 	changed chan struct{}     // closed and replaced at every publish and state change
+	// wake-up pacing (see wakeInterval)
+	lastWake    time.Time
+	wakePending bool
 }
 
 // change is a state change and how many points were durable when it happened.
@@ -49,7 +58,18 @@ func (h *hub) publish(points ...*goniodv1.Point) {
 		h.durable = int(p.Index) + 1
 	}
 	h.rec.PointsDone = h.durable
-	h.wakeLocked()
+	if since := time.Since(h.lastWake); since >= wakeInterval {
+		h.wakeLocked()
+	} else if !h.wakePending {
+		h.wakePending = true
+		time.AfterFunc(wakeInterval-since, func() {
+			h.mu.Lock()
+			if h.wakePending {
+				h.wakeLocked()
+			}
+			h.mu.Unlock()
+		})
+	}
 	h.mu.Unlock()
 }
 
@@ -72,6 +92,7 @@ func (h *hub) setRecord(rec scan.Record) {
 func (h *hub) wakeLocked() {
 	close(h.changed)
 	h.changed = make(chan struct{})
+	h.lastWake, h.wakePending = time.Now(), false
 }
 
 // view is what a watcher sees at one moment.
@@ -85,11 +106,11 @@ type view struct {
 }
 
 // look returns the state for a watcher at cursor that has seen state version seen, with at most max
-// in-memory points.
-func (h *hub) look(cursor, max int, seen uint64) view {
+// in-memory points appended to buf[:0].
+func (h *hub) look(cursor, max int, seen uint64, buf []*goniodv1.Point) view {
 	h.mu.RLock()
 	defer h.mu.RUnlock()
-	v := view{durable: h.durable, rec: h.rec, version: h.version, changed: h.changed}
+	v := view{durable: h.durable, rec: h.rec, version: h.version, changed: h.changed, points: buf[:0]}
 	for i := range h.history {
 		if h.history[i].version > seen {
 			v.changes = append(v.changes, h.history[i:]...)

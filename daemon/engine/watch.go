@@ -30,7 +30,7 @@ func (e *Engine) Watch(ctx context.Context, id string, from int, send func(Event
 		return err
 	}
 	w := &watch{e: e, id: id, h: en.hub, cursor: max(from, 0), send: send}
-	v := w.h.look(w.cursor, 0, ^uint64(0)) // the present record; earlier changes are not replayed
+	v := w.h.look(w.cursor, 0, ^uint64(0), nil) // the present record; earlier changes are not replayed
 	w.seen = v.version
 	rec := v.rec
 	if err := send(Event{Record: &rec}); err != nil {
@@ -52,12 +52,14 @@ type watch struct {
 	cursor int
 	seen   uint64
 	send   func(Event) error
+	buf    []*goniodv1.Point
 }
 
 // step sends what is ready (a state change, points from memory or from the store) or waits for more. It
 // returns done after the End event.
 func (w *watch) step(ctx context.Context) (done bool, err error) {
-	v := w.h.look(w.cursor, watchMemoryBatch, w.seen)
+	v := w.h.look(w.cursor, watchMemoryBatch, w.seen, w.buf)
+	w.buf = v.points
 	upto := v.durable // points before the next state change go first
 	if len(v.changes) > 0 {
 		c := v.changes[0]
@@ -77,7 +79,11 @@ func (w *watch) step(ctx context.Context) (done bool, err error) {
 			}
 			w.cursor++
 		}
-		return false, nil
+		clear(v.points)
+		if w.cursor < v.durable || len(v.changes) > 0 {
+			return false, nil
+		}
+		// Caught up with what this look saw: anything newer has closed v.changed already.
 	case w.cursor < upto:
 		// Behind the in-memory ring: catch up from the store in bounded chunks.
 		return false, w.e.store.ReadPoints(ctx, w.id, w.cursor, min(upto-w.cursor, watchStoreBatch), func(p *goniodv1.Point) error {
