@@ -145,8 +145,3 @@ func (f Fault) String() string {
 	}
 	return b.String()
 }
-
-// affectsReply reports whether the fault changes the next reply rather than acting at once.
-func (f Fault) affectsReply() bool {
-	return f.Action == Stall || f.Action == Mute || f.Action == Garble
-}

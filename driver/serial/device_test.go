@@ -1,0 +1,111 @@
+//go:build linux
+
+package serial_test
+
+import (
+	"context"
+	"io"
+	"log/slog"
+	"os"
+	"path/filepath"
+	"testing"
+	"time"
+
+	"goniod/driver"
+	"goniod/driver/drivertest"
+	"goniod/driver/serial"
+	"goniod/sim"
+	"goniod/sim/scpi"
+)
+
+// device is goniosim's server on a pseudo-terminal, in-process, reachable at link.
+type device struct {
+	inst *sim.Instrument
+	srv  *scpi.Server
+	link string
+}
+
+// startDevice serves a simulated instrument on a pseudo-terminal until the test ends.
+func startDevice(t testing.TB, cfg sim.Config, o scpi.Options) *device {
+	t.Helper()
+	if cfg.Seed == 0 {
+		cfg.Seed = 1
+	}
+	if cfg.Speed == 0 {
+		cfg.Speed = 1000
+	}
+	inst, err := sim.New(cfg, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	d := &device{inst: inst, srv: scpi.NewServer(inst, o), link: filepath.Join(t.TempDir(), "tty")}
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- d.srv.ServePTY(ctx, scpi.PTYOptions{Link: d.link}) }()
+	t.Cleanup(func() {
+		cancel()
+		d.srv.Close()
+		if err := <-done; err != nil {
+			t.Errorf("ServePTY: %v", err)
+		}
+	})
+	d.waitLink(t)
+	return d
+}
+
+func (d *device) waitLink(t testing.TB) {
+	t.Helper()
+	for range 300 {
+		if _, err := os.Stat(d.link); err == nil {
+			return
+		}
+		time.Sleep(10 * time.Millisecond)
+	}
+	t.Fatalf("no device at %s after 3 s", d.link)
+}
+
+// testLog is the driver's log: the test log with GONIOD_TEST_LOG set, else nothing.
+func testLog(t testing.TB) *slog.Logger {
+	if os.Getenv("GONIOD_TEST_LOG") == "" {
+		return slog.New(slog.DiscardHandler)
+	}
+	return slog.New(slog.NewTextHandler(testWriter{t}, &slog.HandlerOptions{Level: slog.LevelDebug}))
+}
+
+type testWriter struct{ t testing.TB }
+
+func (w testWriter) Write(b []byte) (int, error) {
+	w.t.Log(string(b))
+	return len(b), nil
+}
+
+var _ io.Writer = testWriter{}
+
+// openDriver opens the serial driver on the device with the built-in profile; fast timeouts keep fault
+// tests short.
+func openDriver(t testing.TB, d *device, change func(*serial.Settings)) *serial.Driver {
+	t.Helper()
+	s := serial.Settings{Device: d.link, ReadTimeout: 300 * time.Millisecond, ReconnectMax: 200 * time.Millisecond}
+	if change != nil {
+		change(&s)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+	defer cancel()
+	drv, err := serial.Open(ctx, serial.DefaultProfile(), s, serial.OpenPort, testLog(t))
+	if err != nil {
+		t.Fatalf("open the serial driver on %s: %v", d.link, err)
+	}
+	t.Cleanup(func() { drv.Close() })
+	return drv
+}
+
+// TestConformance runs the driver conformance suite on the serial driver talking to the simulator on a
+// pseudo-terminal, through go.bug.st/serial; sim runs the same suite in-process.
+func TestConformance(t *testing.T) {
+	drivertest.Run(t, drivertest.Setup{
+		Open: func(t *testing.T) driver.Instrument {
+			return openDriver(t, startDevice(t, sim.Config{}, scpi.Options{}), nil)
+		},
+		LongGate: time.Hour, // 3.6 s of wall time at speed 1000
+	})
+}
