@@ -117,19 +117,3 @@ func halfMaxCentre(t *testing.T, pts []client.Point, axis string) float64 {
 	right := x[r] + (y[r]-half)/(y[r]-y[r+1])*(x[r+1]-x[r])
 	return (left + right) / 2
 }
-
-func readPoints(t *testing.T, d *servertest.Daemon, id string) []client.Point {
-	t.Helper()
-	st, err := d.Client.Points(context.Background(), id, 0, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var out []client.Point
-	for p := range st.C {
-		out = append(out, p)
-	}
-	if err := st.Err(); err != nil {
-		t.Fatal(err)
-	}
-	return out
-}

@@ -230,9 +230,12 @@ var errManualBusy = scan.ErrBusy
 func (e *Engine) Manual(fn func() error) error {
 	e.mu.Lock()
 	if e.running != nil {
-		id := e.running.hub.record().ID
+		rec := e.running.hub.record()
 		e.mu.Unlock()
-		return fmt.Errorf("%w: scan %s is running; pause or cancel it first", errManualBusy, id)
+		if rec.State == scan.Paused {
+			return fmt.Errorf("%w: scan %s is paused; resume or cancel it first", errManualBusy, rec.ID)
+		}
+		return fmt.Errorf("%w: scan %s is running; pause or cancel it first", errManualBusy, rec.ID)
 	}
 	for _, id := range e.ids {
 		if e.scans[id].hub.record().State == scan.Paused {
