@@ -61,6 +61,11 @@ func usageError(format string, args ...any) error {
 func execute(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
+	return executeContext(ctx, args, stdin, stdout, stderr)
+}
+
+// executeContext runs gonio until ctx ends (an interrupt, in main).
+func executeContext(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.Writer) int {
 	a := &app{stdin: stdin, stdout: stdout, stderr: stderr, ctx: ctx}
 	root := a.rootCommand()
 	root.SetArgs(args)
