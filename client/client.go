@@ -173,7 +173,7 @@ func unary[T any](ctx context.Context, c *Client, idempotent bool, call func(ctx
 }
 
 // Stream is a server stream as a channel. C is closed when the stream ends, fails or its context ends; Err
-// then tells why (nil after a normal end).
+// then tells why: nil after a normal end, the context's error when the context ended it.
 type Stream[T any] struct {
 	C    <-chan T
 	err  error
@@ -196,7 +196,11 @@ func stream[T any](ctx context.Context, recv func() (T, error)) *Stream[T] {
 		for {
 			v, err := recv()
 			if err != nil {
-				if !errors.Is(err, errEndOfStream) && !isEOF(err) {
+				switch {
+				case errors.Is(err, errEndOfStream) || isEOF(err):
+				case ctx.Err() != nil:
+					s.err = ctx.Err() // the caller ended the stream
+				default:
 					s.err = mapError(err)
 				}
 				return
