@@ -66,6 +66,7 @@ type Monitor struct {
 	lastActive time.Time
 	// what the previous look saw
 	seen, wasClosed bool
+	lastScan        string // the scan running at the previous look: the one an opening interrupts
 	// after a failed switch-off, the next try waits until then (the link may be down)
 	retryAt time.Time
 }
@@ -109,11 +110,15 @@ func (m *Monitor) Run(ctx context.Context) {
 func (m *Monitor) Check(ctx context.Context) {
 	st := m.o.Instrument.State()
 	rec, running := m.o.Scans.Running()
-	log := m.o.Log
-	if running {
-		log = log.With("scan", rec.ID)
-	}
 	m.mu.Lock()
+	scanID := m.lastScan
+	if running {
+		scanID = rec.ID
+	}
+	m.lastScan = ""
+	if running {
+		m.lastScan = rec.ID
+	}
 	opened := m.seen && m.wasClosed && !st.InterlockClosed
 	firstOpen := !m.seen && !st.InterlockClosed
 	m.seen, m.wasClosed = true, st.InterlockClosed
@@ -122,6 +127,10 @@ func (m *Monitor) Check(ctx context.Context) {
 	}
 	idleFor := m.o.Now().Sub(m.lastActive)
 	m.mu.Unlock()
+	log := m.o.Log
+	if scanID != "" {
+		log = log.With("scan", scanID)
+	}
 
 	switch {
 	case opened:

@@ -94,6 +94,8 @@ func TestInterlockOpening(t *testing.T) {
 	if r.ev[EventInterlockOpened] != 0 || r.inst.offs != 0 {
 		t.Fatalf("acted on a closed interlock: events %v, offs %d", r.ev, r.inst.offs)
 	}
+	r.after(200 * time.Millisecond)
+	r.scans.running = nil   // the runner saw it first and paused the scan
 	r.inst.set(true, false) // the door opens; the cache still shows high voltage on
 	r.after(200 * time.Millisecond)
 	if r.ev[EventInterlockOpened] != 1 || r.ev[EventHighVoltageOffInterlock] != 1 || r.inst.offs != 1 {
