@@ -97,3 +97,23 @@ func TestEveryCommandHasAnExample(t *testing.T) {
 		}
 	}
 }
+
+// TestCompletion: shell completion offers the daemon's scan IDs and the fixed values of flags.
+func TestCompletion(t *testing.T) {
+	d := servertest.Start(t)
+	code, out, errs := run(t, d.Addr, "scan", "timed", "--points", "2", "--dwell", "1s", "--label", "LiF batch 7", "--detach")
+	if code != exitOK {
+		t.Fatalf("scan: exit %d: %s", code, errs)
+	}
+	id := strings.TrimSpace(out)
+	d.WaitEnd(t, id)
+	if _, out, _ := run(t, d.Addr, "__complete", "show", "scan-"); !strings.Contains(out, id+"\tdone LiF batch 7") {
+		t.Errorf("completion of show: %q, want %s with its state and label", out, id)
+	}
+	if _, out, _ := execOut(t, "__complete", "plot", "x", "--x", ""); !strings.Contains(out, "energy") {
+		t.Errorf("completion of plot --x: %q", out)
+	}
+	if code, out, _ := run(t, d.Addr, "completion", "bash"); code != exitOK || !strings.Contains(out, "__start_gonio") {
+		t.Errorf("completion bash: exit %d, %d bytes", code, len(out))
+	}
+}

@@ -19,11 +19,11 @@ func (a *app) convertCommand() *cobra.Command {
 		Short: "Convert crystal angles θ to wavelength and photon energy (Bragg's law, E = hc/λ), or back",
 		Long: `Converts crystal angles θ in degrees to the wavelength nλ = 2d sin θ reflected in the given order and its
 photon energy E = hc/λ, or, with --wavelength, wavelengths in nm to the crystal angles that reflect them. The
-crystal is the instrument's unless --crystal or --d names another.`,
+crystal is the instrument's unless --crystal or --d-nm names another.`,
 		Example: `  gonio convert 22.5 20.2
   gonio convert 45.1 --order 2 --crystal LiF
   gonio convert --wavelength 0.15406 0.13922 --crystal NaCl
-  gonio convert 30 --d 0.2014 --output json`,
+  gonio convert 30 --d-nm 0.2014 --output json`,
 		Args: cobra.MinimumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			values := make([]float64, len(args))
@@ -48,7 +48,7 @@ crystal is the instrument's unless --crystal or --d names another.`,
 					return err
 				}
 				if cfg.Crystal == "" && cfg.CrystalDNM == 0 {
-					return usageError("the instrument has no crystal configured: give --crystal or --d")
+					return usageError("the instrument has no crystal configured: give --crystal or --d-nm")
 				}
 				o.Crystal, o.CrystalDNM = cfg.Crystal, cfg.CrystalDNM
 				if o.Crystal != "" {
@@ -68,7 +68,7 @@ crystal is the instrument's unless --crystal or --d names another.`,
 		},
 	}
 	cmd.Flags().StringVar(&o.Crystal, "crystal", "", "analyzer crystal by name, e.g. LiF, NaCl, Si111 (default: the instrument's)")
-	cmd.Flags().Float64Var(&o.CrystalDNM, "d", 0, "lattice plane spacing d in nm instead of a crystal name")
+	cmd.Flags().Float64Var(&o.CrystalDNM, "d-nm", 0, "lattice plane spacing d in nm instead of a crystal name")
 	cmd.Flags().IntVar(&o.Order, "order", 1, "diffraction order n")
 	cmd.Flags().Float64Var(&o.ThetaOffsetDeg, "offset", 0, "zero offset in degrees subtracted from each angle")
 	cmd.Flags().BoolVar(&wavelengths, "wavelength", false, "the arguments are wavelengths in nm; print their angles")

@@ -40,8 +40,8 @@ The title says what the scans are, from their label, tube settings, anode and cr
 	}
 	fs := cmd.Flags()
 	fs.StringVarP(&f.out, "out", "o", "", "output file; its extension picks the format: .svg, .png or .pdf (required)")
-	fs.StringVar(&f.x, "x", "", "abscissa: an axis (theta, twotheta, …), wavelength, energy or index (default: the axis the scan moved)")
-	fs.StringVar(&f.y, "y", yRate, "ordinate: rate (counts/s), counts (per point) or corrected (dead-time-corrected rate)")
+	fs.StringVarP(&f.x, "x", "x", "", "abscissa: an axis (theta, twotheta, …), wavelength, energy or index (default: the axis the scan moved)")
+	fs.StringVarP(&f.y, "y", "y", yRate, "ordinate: rate (counts/s), counts (per point) or corrected (dead-time-corrected rate)")
 	fs.BoolVar(&f.log, "log", false, "logarithmic ordinate")
 	fs.BoolVar(&f.noErrors, "no-errors", false, "leave out the error bars")
 	fs.StringVar(&f.annotate, "annotate", "lines", "peak labels: lines (identified emission lines), peaks (angles) or none")
