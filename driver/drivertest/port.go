@@ -27,7 +27,7 @@ var ErrVanished = errors.New("drivertest: device vanished (transcript !close)")
 // be the next "> " entry, and is answered with that entry's reply. At the end of the test it fails the test
 // if a recorded exchange went unused.
 type Player struct {
-	t  testing.TB
+	t  Reporter
 	tr *Transcript
 
 	mu      sync.Mutex
@@ -39,8 +39,17 @@ type Player struct {
 	closed  bool
 }
 
+// Reporter is where a Player reports mismatches: a *testing.T.
+type Reporter interface {
+	Helper()
+	Errorf(format string, args ...any)
+	Cleanup(func())
+}
+
+var _ Reporter = (testing.TB)(nil)
+
 // NewPlayer returns a port that plays tr.
-func NewPlayer(t testing.TB, tr *Transcript) *Player {
+func NewPlayer(t Reporter, tr *Transcript) *Player {
 	t.Helper()
 	p := &Player{t: t, tr: tr, timeout: time.Second}
 	t.Cleanup(func() {

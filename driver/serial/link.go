@@ -108,6 +108,14 @@ func (c *conn) serveHalt() {
 	}
 }
 
+// timeoutOf is an operation's reply timeout.
+func (c *conn) timeoutOf(op *Operation) time.Duration {
+	if op.timeout > 0 {
+		return op.timeout
+	}
+	return c.timeout
+}
+
 func (c *conn) write(line string) error {
 	c.lastWrite = time.Now()
 	if _, err := c.port.Write(append([]byte(line), c.ending...)); err != nil {
@@ -130,7 +138,7 @@ func (c *conn) exchange(ctx context.Context, op *Operation, vals values, wait ti
 	if err := c.write(op.send.render(vals)); err != nil {
 		return nil, err
 	}
-	line, err := c.readLine(ctx, time.Now().Add(op.timeout+wait))
+	line, err := c.readLine(ctx, time.Now().Add(c.timeoutOf(op)+wait))
 	if err != nil {
 		var f *failure
 		if ctx.Err() != nil || errors.As(err, &f) && f.timeout {
@@ -237,7 +245,7 @@ func (c *conn) resync(ctx context.Context) error {
 	if err := c.write(op.send.render(values{"token": token})); err != nil {
 		return err
 	}
-	deadline = time.Now().Add(op.timeout)
+	deadline = time.Now().Add(c.timeoutOf(op))
 	for {
 		line, err := c.readLine(ctx, deadline)
 		if err != nil {

@@ -69,7 +69,7 @@ type opFile struct {
 
 type perrFunc func(line int, field string, err error) error
 
-func (p *Profile) parseOperations(n *yaml.Node, perr perrFunc) error {
+func (p *Profile) parseOperations(keyLine int, n *yaml.Node, perr perrFunc) error {
 	if n.Kind != yaml.MappingNode {
 		return perr(n.Line, "operations", fmt.Errorf("want a mapping of operation names, got %s", kindOf(n)))
 	}
@@ -87,7 +87,7 @@ func (p *Profile) parseOperations(n *yaml.Node, perr perrFunc) error {
 		if _, dup := p.ops[spec.name]; dup {
 			return perr(key.Line, "operations."+key.Value, errors.New("defined twice"))
 		}
-		op, err := p.compileOperation(spec, val, perr)
+		op, err := p.compileOperation(spec, key.Line, val, perr)
 		if err != nil {
 			return err
 		}
@@ -95,7 +95,7 @@ func (p *Profile) parseOperations(n *yaml.Node, perr perrFunc) error {
 	}
 	for _, s := range opSpecs {
 		if s.required && p.ops[s.name] == nil {
-			return perr(n.Line, "operations", fmt.Errorf("missing operation %q (required: %s)", s.name, specNames(true)))
+			return perr(keyLine, "operations", fmt.Errorf("missing operation %q (required: %s)", s.name, specNames(true)))
 		}
 	}
 	return nil
@@ -111,18 +111,18 @@ func specNames(required bool) string {
 	return strings.Join(out, ", ")
 }
 
-func (p *Profile) compileOperation(spec *opSpec, n *yaml.Node, perr perrFunc) (*Operation, error) {
+func (p *Profile) compileOperation(spec *opSpec, keyLine int, n *yaml.Node, perr perrFunc) (*Operation, error) {
 	field := "operations." + spec.name
 	var f opFile
-	lines, err := decodeStrict(n, &f)
+	lines, err := decodeStrict(n, &f, field, perr)
 	if err != nil {
-		return nil, perr(n.Line, field, err)
+		return nil, err
 	}
 	at := func(key string) int {
 		if l, ok := lines[key]; ok {
 			return l
 		}
-		return n.Line
+		return keyLine
 	}
 	units := map[string]unit{}
 	for name, u := range f.Units {
@@ -145,14 +145,14 @@ func (p *Profile) compileOperation(spec *opSpec, n *yaml.Node, perr perrFunc) (*
 		op.idempotent = *f.Idempotent
 	}
 	if f.Send == "" {
-		return nil, perr(n.Line, field+".send", errors.New("required: the command to send"))
+		return nil, perr(keyLine, field+".send", errors.New("required: the command to send"))
 	}
 	if op.send, err = compileTemplate(f.Send, spec.send, units); err != nil {
 		return nil, perr(at("send"), field+".send", err)
 	}
 	switch {
 	case spec.each != nil && f.Each == "":
-		return nil, perr(n.Line, field+".each", errors.New("required: the template of one target, e.g. \"{axis},{deg}\""))
+		return nil, perr(keyLine, field+".each", errors.New("required: the template of one target, e.g. \"{axis},{deg}\""))
 	case spec.each == nil && (f.Each != "" || f.Join != ""):
 		return nil, perr(at("each"), field+".each", fmt.Errorf("only move_all has each and join"))
 	case spec.each != nil:
@@ -167,15 +167,12 @@ func (p *Profile) compileOperation(spec *opSpec, n *yaml.Node, perr perrFunc) (*
 		return nil, perr(at("per_degree"), field+".per_degree", errors.New("only move and move_all wait for motion"))
 	}
 	if f.Reply == "" {
-		return nil, perr(n.Line, field+".reply", errors.New("required: a pattern for the reply (every command is answered)"))
+		return nil, perr(keyLine, field+".reply", errors.New("required: a pattern for the reply (every command is answered)"))
 	}
 	if op.reply, err = compileReply(f.Reply, spec.reply, spec.needs, units, f.Split); err != nil {
 		return nil, perr(at("reply"), field+".reply", err)
 	}
-	if op.timeout == 0 {
-		op.timeout = p.Timeout
-	}
-	if op.timeout < time.Millisecond || op.timeout > time.Hour {
+	if op.timeout != 0 && (op.timeout < time.Millisecond || op.timeout > time.Hour) {
 		return nil, perr(at("timeout"), field+".timeout", fmt.Errorf("%v: must be within [1ms, 1h] (write units: 500ms, 2s)", op.timeout))
 	}
 	if op.perDegree < 0 || op.perDegree > time.Minute {
@@ -209,9 +206,9 @@ type axisFile struct {
 
 func (p *Profile) parseInstrument(n *yaml.Node, perr perrFunc) error {
 	var f instrumentFile
-	lines, err := decodeStrict(n, &f)
+	lines, err := decodeStrict(n, &f, "instrument", perr)
 	if err != nil {
-		return perr(n.Line, "instrument", err)
+		return err
 	}
 	p.desc = driver.Description{Model: f.Model, Channels: f.Channels, Anode: f.Anode, MaxKV: f.MaxKV, MaxMA: f.MaxMA,
 		MaxPowerW: f.MaxPowerW, Crystal: f.Crystal, CrystalSpacingNM: f.CrystalDNM, DeadTime: f.DeadTime, DeadTimeParalyzable: f.Paralyzable}
@@ -222,10 +219,10 @@ func (p *Profile) parseInstrument(n *yaml.Node, perr perrFunc) error {
 	for i := range f.Axes {
 		an := &f.Axes[i]
 		var a axisFile
-		if _, err := decodeStrict(an, &a); err != nil {
-			return perr(an.Line, fmt.Sprintf("instrument.axes[%d]", i), err)
-		}
 		where := fmt.Sprintf("instrument.axes[%d]", i)
+		if _, err := decodeStrict(an, &a, where, perr); err != nil {
+			return err
+		}
 		switch {
 		case a.Name == "":
 			return perr(an.Line, where+".name", errors.New("required"))

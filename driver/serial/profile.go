@@ -6,7 +6,9 @@ import (
 	"fmt"
 	"os"
 	"reflect"
+	"regexp"
 	"slices"
+	"strconv"
 	"strings"
 	"time"
 
@@ -37,7 +39,7 @@ type Operation struct {
 	send, each *template
 	join       string
 	reply      *pattern
-	timeout    time.Duration
+	timeout    time.Duration // 0: the reply timeout of the profile (or the settings)
 	perDegree  time.Duration
 	idempotent bool
 }
@@ -116,9 +118,9 @@ func ParseProfile(name string, b []byte) (*Profile, error) {
 	}
 	root := doc.Content[0]
 	var f profileFile
-	lines, err := decodeStrict(root, &f)
+	lines, err := decodeStrict(root, &f, "", perr)
 	if err != nil {
-		return nil, perr(root.Line, "(top level)", err)
+		return nil, err
 	}
 	p := &Profile{Name: f.Name, File: name, CommandEnding: f.CommandEnding, ReplyEnding: f.ReplyEnding,
 		Timeout: f.Timeout, Keepalive: f.Keepalive, bools: defaultBooleans, codes: map[int64]error{}, ops: map[string]*Operation{}}
@@ -171,17 +173,17 @@ func ParseProfile(name string, b []byte) (*Profile, error) {
 	if f.Operations.Kind == 0 {
 		return nil, perr(root.Line, "operations", errors.New("required"))
 	}
-	if err := p.parseOperations(&f.Operations, perr); err != nil {
+	if err := p.parseOperations(lines["operations"], &f.Operations, perr); err != nil {
 		return nil, err
 	}
 	return p, nil
 }
 
 // decodeStrict decodes a mapping node into the struct v, refusing keys v has no field for, and returns the
-// line of each key.
-func decodeStrict(n *yaml.Node, v any) (map[string]int, error) {
+// line of each key. where is the field path of the mapping, for errors.
+func decodeStrict(n *yaml.Node, v any, where string, perr perrFunc) (map[string]int, error) {
 	if n.Kind != yaml.MappingNode {
-		return nil, fmt.Errorf("want a mapping (key: value lines), got %s", kindOf(n))
+		return nil, perr(n.Line, fieldPath(where, ""), fmt.Errorf("want a mapping (key: value lines), got %s", kindOf(n)))
 	}
 	known := map[string]bool{}
 	t := reflect.TypeOf(v).Elem()
@@ -193,14 +195,43 @@ func decodeStrict(n *yaml.Node, v any) (map[string]int, error) {
 	for i := 0; i+1 < len(n.Content); i += 2 {
 		k := n.Content[i]
 		if !known[k.Value] {
-			return nil, fmt.Errorf("line %d: unknown field %q", k.Line, k.Value)
+			return nil, perr(k.Line, fieldPath(where, k.Value), fmt.Errorf("unknown field %q", k.Value))
 		}
 		lines[k.Value] = k.Line
 	}
 	if err := n.Decode(v); err != nil {
-		return nil, err
+		line, msg := n.Line, err.Error()
+		var te *yaml.TypeError
+		if errors.As(err, &te) && len(te.Errors) > 0 {
+			if m := lineMessage.FindStringSubmatch(te.Errors[0]); m != nil {
+				line, _ = strconv.Atoi(m[1])
+				msg = m[2]
+			}
+		}
+		field := fieldPath(where, "")
+		for key, l := range lines {
+			if l == line {
+				field = fieldPath(where, key)
+			}
+		}
+		return nil, perr(line, field, errors.New(msg))
 	}
 	return lines, nil
+}
+
+var lineMessage = regexp.MustCompile(`^line (\d+): (.*)$`)
+
+// fieldPath joins a mapping's path and a key: "operations.move" + "units".
+func fieldPath(where, key string) string {
+	switch {
+	case where == "" && key == "":
+		return "(top level)"
+	case where == "":
+		return key
+	case key == "":
+		return where
+	}
+	return where + "." + key
 }
 
 func kindOf(n *yaml.Node) string {
