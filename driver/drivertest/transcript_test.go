@@ -63,9 +63,11 @@ type reporter struct {
 	cleanup []func()
 }
 
-func (r *reporter) Helper()                        {}
-func (r *reporter) Errorf(format string, a ...any) { r.errs = append(r.errs, fmt.Sprintf(format, a...)) }
-func (r *reporter) Cleanup(f func())               { r.cleanup = append(r.cleanup, f) }
+func (r *reporter) Helper() {}
+func (r *reporter) Errorf(format string, a ...any) {
+	r.errs = append(r.errs, fmt.Sprintf(format, a...))
+}
+func (r *reporter) Cleanup(f func()) { r.cleanup = append(r.cleanup, f) }
 func (r *reporter) end() {
 	for _, f := range r.cleanup {
 		f()
