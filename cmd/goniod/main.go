@@ -23,6 +23,9 @@ import (
 )
 
 func main() {
+	if code, ok := runAsService(os.Args[1:], os.Stderr); ok {
+		os.Exit(code)
+	}
 	os.Exit(run(os.Args[1:], os.Stderr))
 }
 
@@ -54,7 +57,7 @@ type flags struct {
 	simAnode, simCrystal                 string
 	tlsCert, tlsKey, tlsClientCA, tokens string
 	insecure                             bool
-	logFormat, logLevel                  string
+	logFormat, logLevel, logFile         string
 	showVersion                          bool
 }
 
@@ -84,6 +87,7 @@ func parseFlags(args []string, stderr io.Writer) (*flags, error) {
 	fs.BoolVar(&f.insecure, "insecure", false, "allow a non-loopback listen address without TLS (logged loudly)")
 	fs.StringVar(&f.logFormat, "log-format", "text", "log format: text or json")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log level: debug, info, warn, error")
+	fs.StringVar(&f.logFile, "log-file", "", "append the log to this `file` instead of standard error (e.g. as a Windows service)")
 	fs.BoolVar(&f.showVersion, "version", false, "print the version and exit")
 	if err := fs.Parse(args); err != nil {
 		return nil, err
@@ -117,6 +121,9 @@ func (f *flags) merge() (*config.File, error) {
 	}
 	str("log-format", &cfg.Log.Format, f.logFormat)
 	str("log-level", &cfg.Log.Level, f.logLevel)
+	if set["log-file"] {
+		cfg.Log.File = f.logFile
+	}
 	for name, dst := range map[string]*string{"tls-cert": &cfg.Security.TLSCert, "tls-key": &cfg.Security.TLSKey,
 		"tls-client-ca": &cfg.Security.TLSClientCA, "tokens": &cfg.Security.Tokens} {
 		if set[name] {
@@ -164,7 +171,15 @@ func newLogger(cfg *config.File, w io.Writer) (*slog.Logger, error) {
 	return nil, fmt.Errorf("log format %q: use text or json", cfg.Log.Format)
 }
 
+// run runs goniod until SIGINT or SIGTERM.
 func run(args []string, stderr io.Writer) int {
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	return serve(ctx, args, stderr)
+}
+
+// serve runs goniod until ctx ends and returns the exit code.
+func serve(ctx context.Context, args []string, stderr io.Writer) int {
 	f, err := parseFlags(args, stderr)
 	if err == flag.ErrHelp {
 		return 0
@@ -182,13 +197,21 @@ func run(args []string, stderr io.Writer) int {
 		fmt.Fprintln(stderr, "goniod:", err)
 		return 2
 	}
-	log, err := newLogger(cfg, stderr)
+	logTo := stderr
+	if cfg.Log.File != "" {
+		lf, err := os.OpenFile(cfg.Log.File, os.O_WRONLY|os.O_APPEND|os.O_CREATE, 0o640)
+		if err != nil {
+			fmt.Fprintln(stderr, "goniod: log file:", err)
+			return 2
+		}
+		defer lf.Close()
+		logTo = lf
+	}
+	log, err := newLogger(cfg, logTo)
 	if err != nil {
 		fmt.Fprintln(stderr, "goniod:", err)
 		return 2
 	}
-	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
-	defer stop()
 	if err := server.Run(ctx, server.Options{Config: cfg, Version: version(), Log: log}); err != nil {
 		log.Error("goniod stopped", "err", err)
 		return 1

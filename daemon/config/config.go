@@ -44,6 +44,8 @@ type File struct {
 type Log struct {
 	Format string `yaml:"format"` // text or json
 	Level  string `yaml:"level"`  // debug, info, warn, error
+	// File to append the log to instead of standard error (a Windows service has none).
+	File string `yaml:"file"`
 }
 
 // InstrumentFile overrides parts of the instrument description.
