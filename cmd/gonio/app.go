@@ -125,9 +125,9 @@ func (a *app) rootCommand() *cobra.Command {
 		Long: `gonio submits scans to goniod, follows them live, fetches their points as CSV or JSON,
 and steers the queue and the instrument.
 
-Where the daemon is: --addr, else $GONIO_ADDR, else the configuration file (` + "`gonio help config-file`" + `),
-else ` + client.DefaultAddr + `. A lab with several instruments names them in the configuration file and picks
-one with --instrument NAME. Exit codes are listed by ` + "`gonio help exit-codes`" + `.`,
+Where the daemon is: --addr, else the instrument named by --instrument (or $GONIO_INSTRUMENT, or the
+configuration file's default; see ` + "`gonio help config-file`" + `), else $GONIO_ADDR, else the file's addr,
+else ` + client.DefaultAddr + `. Exit codes are listed by ` + "`gonio help exit-codes`" + `.`,
 		Example: `  gonio status
   gonio scan coupled --from 10 --to 55 --step 0.1 --dwell 1s --kv 30 --ma 0.8
   gonio fetch scan-000001 --format csv -o scan1.csv`,

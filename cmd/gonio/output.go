@@ -55,12 +55,12 @@ func writeCSV(w io.Writer, header []string, rows ...[]string) error {
 // num formats a number for CSV: shortest exact form.
 func num(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 
-// timeText is a timestamp for CSV (RFC 3339, UTC), empty when unset.
+// timeText is a timestamp for CSV (RFC 3339 with the fraction of a second, UTC), empty when unset.
 func timeText(t time.Time) string {
 	if t.IsZero() {
 		return ""
 	}
-	return t.UTC().Format(time.RFC3339)
+	return t.UTC().Format(time.RFC3339Nano)
 }
 
 // localTime is a timestamp for tables, in the local zone.
