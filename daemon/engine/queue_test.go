@@ -318,3 +318,28 @@ func checkFieldError(t *testing.T, name string, err error, field string) {
 	}
 	t.Errorf("%s: %v does not name %s", name, client.FieldErrors(err), field)
 }
+
+// The queue is first in, first out, one scan at a time: each scan starts after the one before it ended.
+func TestQueueRunsInOrder(t *testing.T) {
+	d := servertest.Start(t, servertest.WithSim("speed", 200.0))
+	ctx := context.Background()
+	var ids []string
+	for _, n := range []int{6, 2, 4, 3} {
+		s, err := d.Client.Submit(ctx, slowScan(n))
+		if err != nil {
+			t.Fatal(err)
+		}
+		ids = append(ids, s.ID)
+	}
+	var prev client.Scan
+	for i, id := range ids {
+		s, _ := d.WaitEnd(t, id)
+		if s.State != client.Done {
+			t.Fatalf("scan %s ended %s", id, s.State)
+		}
+		if i > 0 && s.Started.Before(prev.Ended) {
+			t.Errorf("scan %s started at %v, before %s ended at %v", id, s.Started.Format(time.StampMicro), prev.ID, prev.Ended.Format(time.StampMicro))
+		}
+		prev = s
+	}
+}
