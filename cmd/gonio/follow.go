@@ -106,72 +106,98 @@ func (a *app) follow(c *client.Client, id string, view followView) error {
 	if err != nil {
 		return err
 	}
-	pr := &progress{w: a.stderr, tty: isTerminal(a.stderr) && view == viewProgress, id: id, t0: time.Now(), done0: -1}
-	var printer *pointPrinter
-	var live *livePlot
-	var final *client.Scan
+	f := &follower{a: a, id: id, view: view,
+		pr: &progress{w: a.stderr, tty: isTerminal(a.stderr) && view == viewProgress, id: id, t0: time.Now(), done0: -1}}
 	for ev := range st.C {
-		if s := ev.Scan; s != nil {
-			if printer == nil && view == viewPoints {
-				printer = a.newPointPrinter(*s)
-			}
-			if live == nil && view == viewPlot {
-				live = newLivePlot(a.stdout, *s)
-			}
-			if (s.State != pr.state || s.Reason != pr.reason) && view != viewPlot &&
-				(pr.state != "" || s.State != client.Running || view == viewPoints) {
-				pr.finish()
-				msg := fmt.Sprintf("%s %s", id, s.State)
-				if s.Reason != "" {
-					msg += ": " + s.Reason
-				}
-				fmt.Fprintln(a.stderr, msg)
-				pr.drawn = false
-			}
-			pr.state, pr.reason, pr.total, pr.done = s.State, s.Reason, s.PointsTotal, s.PointsDone
-			if pr.done0 < 0 {
-				pr.done0, pr.t0 = s.PointsDone, time.Now()
-			}
-			if ev.End {
-				final = s
-			}
-			if live != nil {
-				live.status = pr.line()
-				live.draw(ev.End)
-			}
-			continue
+		if ev.Scan != nil {
+			f.onScan(*ev.Scan, ev.End)
 		}
-		if p := ev.Point; p != nil {
-			pr.done, pr.rate = p.Index+1, p.Rate
-			if len(p.Axes) > 0 {
-				pr.lead, pr.angle = p.Axes[0].Name, p.Axes[0].Actual
-			}
-			switch view {
-			case viewPoints:
-				if err := printer.print(*p); err != nil {
-					return err
-				}
-			case viewPlot:
-				live.add(*p)
-				live.status = pr.line()
-				live.draw(false)
-			default:
-				pr.update(false)
+		if ev.Point != nil {
+			if err := f.onPoint(*ev.Point); err != nil {
+				return err
 			}
 		}
 	}
 	if view == viewProgress {
-		pr.update(true)
-		pr.finish()
+		f.pr.update(true)
+		f.pr.finish()
 	}
 	if err := st.Err(); err != nil {
 		return err
 	}
-	if final == nil {
+	if f.final == nil {
 		return fmt.Errorf("watch of %s ended early", id)
 	}
-	if final.State != client.Done {
-		return withCode(exitScanFailed, fmt.Errorf("scan %s ended %s: %s", id, final.State, final.Reason))
+	if f.final.State != client.Done {
+		return withCode(exitScanFailed, fmt.Errorf("scan %s ended %s: %s", id, f.final.State, f.final.Reason))
+	}
+	return nil
+}
+
+// follower shows the events of one watched scan.
+type follower struct {
+	a       *app
+	id      string
+	view    followView
+	pr      *progress
+	printer *pointPrinter
+	live    *livePlot
+	final   *client.Scan
+}
+
+// onScan takes a state change: reported on stderr (except the first "running" of a progress view), and kept
+// for the progress line and the end.
+func (f *follower) onScan(s client.Scan, end bool) {
+	pr := f.pr
+	if f.printer == nil && f.view == viewPoints {
+		f.printer = f.a.newPointPrinter(s)
+	}
+	if f.live == nil && f.view == viewPlot {
+		f.live = newLivePlot(f.a.stdout, s)
+	}
+	if (s.State != pr.state || s.Reason != pr.reason) && f.view != viewPlot &&
+		(pr.state != "" || s.State != client.Running || f.view == viewPoints) {
+		pr.finish()
+		msg := fmt.Sprintf("%s %s", f.id, s.State)
+		if s.Reason != "" {
+			msg += ": " + s.Reason
+		}
+		fmt.Fprintln(f.a.stderr, msg)
+		pr.drawn = false
+	}
+	pr.state, pr.reason, pr.total, pr.done = s.State, s.Reason, s.PointsTotal, s.PointsDone
+	if pr.done0 < 0 {
+		pr.done0, pr.t0 = s.PointsDone, time.Now()
+	}
+	if end {
+		f.final = &s
+	}
+	if f.live != nil {
+		f.live.status = pr.line()
+		f.live.draw(end)
+	}
+}
+
+// onPoint shows a point the way the view asks.
+func (f *follower) onPoint(p client.Point) error {
+	pr := f.pr
+	pr.done, pr.rate = p.Index+1, p.Rate
+	if len(p.Axes) > 0 {
+		pr.lead, pr.angle = p.Axes[0].Name, p.Axes[0].Actual
+	}
+	if (f.view == viewPoints && f.printer == nil) || (f.view == viewPlot && f.live == nil) {
+		// The protocol starts every watch with the scan's record, which gives the columns.
+		return fmt.Errorf("watch of %s: a point came before the scan's record", f.id)
+	}
+	switch f.view {
+	case viewPoints:
+		return f.printer.print(p)
+	case viewPlot:
+		f.live.add(p)
+		f.live.status = pr.line()
+		f.live.draw(false)
+	default:
+		pr.update(false)
 	}
 	return nil
 }
