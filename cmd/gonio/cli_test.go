@@ -3,6 +3,8 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -115,5 +117,21 @@ func TestCompletion(t *testing.T) {
 	}
 	if code, out, _ := run(t, d.Addr, "completion", "bash"); code != exitOK || !strings.Contains(out, "__start_gonio") {
 		t.Errorf("completion bash: exit %d, %d bytes", code, len(out))
+	}
+}
+
+// TestStatusAllUnreachable: instruments that do not answer are marked; with none answering the exit code says
+// unavailable; --all does not mix with --addr.
+func TestStatusAllUnreachable(t *testing.T) {
+	cfg := filepath.Join(t.TempDir(), "config.yaml")
+	if err := os.WriteFile(cfg, []byte("instruments:\n  bench-b: {addr: 127.0.0.1:1}\n  bench-c: {addr: 127.0.0.1:2}\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, out, _ := execOut(t, "--config", cfg, "--timeout", "2s", "status", "--all")
+	if code != exitUnavailable || strings.Count(out, "unreachable") != 2 {
+		t.Errorf("exit %d, output %q; want %d and both instruments marked unreachable", code, out, exitUnavailable)
+	}
+	if code, _, errs := execOut(t, "--config", cfg, "--addr", "127.0.0.1:1", "status", "--all"); code != exitUsage {
+		t.Errorf("--all with --addr: exit %d (%s), want %d", code, errs, exitUsage)
 	}
 }
