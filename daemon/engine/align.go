@@ -237,6 +237,9 @@ func (e *Engine) align(ctx context.Context, p *alignPlan) (Alignment, error) {
 	if err != nil {
 		return out, err
 	}
+	if err := found(pts, p.detector.Name, "the direct beam", s, out.ScanIDs); err != nil {
+		return out, err
+	}
 	c0 := strongest(pts, p.detector.Name)
 	pts, err = e.alignScan(ctx, &out, p.detector.Name, c0-beamHalfWindowDeg, c0+beamHalfWindowDeg, beamStepDeg, p.dwell, src, 0, "direct beam")
 	if err != nil {
@@ -254,6 +257,9 @@ func (e *Engine) align(ctx context.Context, p *alignPlan) (Alignment, error) {
 	}
 	pts, err = e.alignScan(ctx, &out, p.crystal.Name, p.braggDeg-s, p.braggDeg+s, coarseStepDeg/2, p.coarseDwell, src, 0, "rocking curve, coarse search")
 	if err != nil {
+		return out, err
+	}
+	if err := found(pts, p.crystal.Name, "the reflection", s, out.ScanIDs); err != nil {
 		return out, err
 	}
 	t0 := strongest(pts, p.crystal.Name)
@@ -278,6 +284,19 @@ func (e *Engine) align(ctx context.Context, p *alignPlan) (Alignment, error) {
 		}
 	}
 	return out, nil
+}
+
+// found checks that a coarse search saw its peak, whole, and says what to do when it did not.
+func found(pts []*goniodv1.Point, axis, what string, search float64, ids []string) error {
+	_, err := axisProfile(pts, axis).outline(searchSignificance)
+	switch {
+	case errors.Is(err, errNoPeak):
+		return fmt.Errorf("alignment: %s is not within ±%g° of %s's present zero (scan %s): widen the search, or check the source and the beam path: %w",
+			what, search, axis, ids[len(ids)-1], err)
+	case err != nil:
+		return fmt.Errorf("alignment: %s in scan %s: %w", what, ids[len(ids)-1], err)
+	}
+	return nil
 }
 
 // alignScan runs one axis scan of the alignment outside the queue and returns its points.

@@ -2,7 +2,9 @@ package engine_test
 
 import (
 	"context"
+	"errors"
 	"math"
+	"strings"
 	"testing"
 	"time"
 
@@ -116,4 +118,40 @@ func halfMaxCentre(t *testing.T, pts []client.Point, axis string) float64 {
 	left := x[l-1] + (half-y[l-1])/(y[l]-y[l-1])*(x[l]-x[l-1])
 	right := x[r] + (y[r]-half)/(y[r]-y[r+1])*(x[r+1]-x[r])
 	return (left + right) / 2
+}
+
+// Offsets beyond the default search are found with a wider one; without it the alignment fails saying so,
+// stores nothing and leaves high voltage off.
+func TestAlignSearchWidth(t *testing.T) {
+	const thetaOff, twoThetaOff = -1.8, 2.5
+	d := servertest.Start(t, servertest.WithSim("seed", int64(12)),
+		servertest.WithSim("theta_offset_deg", thetaOff), servertest.WithSim("twotheta_offset_deg", twoThetaOff))
+	ctx := context.Background()
+	src := &client.Source{KV: 30, MA: 1}
+	_, err := d.Client.Align(ctx, client.AlignOptions{Source: src, Store: true})
+	if err == nil || !strings.Contains(err.Error(), "widen the search") {
+		t.Fatalf("alignment with the beam beyond the search: %v, want a failure saying to widen the search", err)
+	}
+	if highVoltage(t, d) {
+		t.Error("high voltage on after a failed alignment")
+	}
+	cfg, _ := d.Client.Config(ctx)
+	for _, a := range cfg.Axes {
+		if a.ZeroOffsetDeg != 0 {
+			t.Errorf("a failed alignment changed %s's offset to %g°", a.Name, a.ZeroOffsetDeg)
+		}
+	}
+	a, err := d.Client.Align(ctx, client.AlignOptions{Source: src, SearchDeg: 3, Dwell: 2 * time.Second})
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := map[string]float64{"theta": thetaOff, "twotheta": twoThetaOff}
+	for _, o := range a.Offsets {
+		if math.Abs(o.OffsetDeg-want[o.Axis]) > 0.02 {
+			t.Errorf("%s offset %.4f° ± %.4f°, configured %g°", o.Axis, o.OffsetDeg, o.ErrDeg, want[o.Axis])
+		}
+	}
+	if _, err := d.Client.Align(ctx, client.AlignOptions{Source: src, SearchDeg: 9}); !errors.Is(err, client.ErrInvalid) || !strings.Contains(err.Error(), "search_deg") {
+		t.Errorf("search of 9°: %v, want a refusal naming search_deg", err)
+	}
 }

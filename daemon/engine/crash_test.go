@@ -363,22 +363,6 @@ func injectTornTail(t *testing.T, data, id string, rng *rand.Rand) bool {
 	return true
 }
 
-func apiPoints(t *testing.T, c *client.Client, id string) []client.Point {
-	t.Helper()
-	st, err := c.Points(context.Background(), id, 0, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var out []client.Point
-	for p := range st.C {
-		out = append(out, p)
-	}
-	if err := st.Err(); err != nil {
-		t.Fatal(err)
-	}
-	return out
-}
-
 func waitEnd(t *testing.T, c *client.Client, id string) client.Scan {
 	t.Helper()
 	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
@@ -397,14 +381,4 @@ func waitEnd(t *testing.T, c *client.Client, id string) client.Scan {
 		t.Fatalf("watch %s: %v", id, err)
 	}
 	return last
-}
-
-// pointsOnDisk counts the complete points lines of a scan's file.
-func pointsOnDisk(t *testing.T, data, id string) int {
-	t.Helper()
-	b, err := os.ReadFile(filepath.Join(data, "scans", id, "points.csv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	return bytes.Count(b, []byte{'\n'}) - 1
 }

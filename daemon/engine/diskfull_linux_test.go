@@ -31,7 +31,7 @@ func TestDiskFullStopsTheScanCleanly(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	paused := pollState(t, d.client, s.ID, client.Paused)
+	paused := pollScan(t, d.client, s.ID, "paused", func(s client.Scan) bool { return s.State == client.Paused })
 	t.Logf("stopped after %d of %d points: %s", paused.PointsDone, paused.PointsTotal, paused.Reason)
 	for _, says := range []string{"storing point", "file too large", "intact", "high voltage off", "resume"} {
 		if !strings.Contains(paused.Reason, says) {
@@ -71,24 +71,5 @@ func setFileSizeLimit(t *testing.T, p *daemonProcess, bytes uint64) {
 	lim := &unix.Rlimit{Cur: bytes, Max: unix.RLIM_INFINITY}
 	if err := unix.Prlimit(p.cmd.Process.Pid, unix.RLIMIT_FSIZE, lim, nil); err != nil {
 		t.Fatalf("prlimit: %v", err)
-	}
-}
-
-// pollState polls a scan until it is in state, for at most 30 s.
-func pollState(t *testing.T, c *client.Client, id string, state client.State) client.Scan {
-	t.Helper()
-	deadline := time.Now().Add(30 * time.Second)
-	for {
-		s, err := c.Scan(context.Background(), id)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if s.State == state {
-			return s
-		}
-		if s.State.Terminal() || time.Now().After(deadline) {
-			t.Fatalf("scan %s is %s (%s), waited for %s", id, s.State, s.Reason, state)
-		}
-		time.Sleep(10 * time.Millisecond)
 	}
 }

@@ -2,6 +2,7 @@ package engine_test
 
 import (
 	"context"
+	"fmt"
 	"testing"
 	"time"
 
@@ -11,7 +12,12 @@ import (
 
 func readPoints(t *testing.T, d *servertest.Daemon, id string) []client.Point {
 	t.Helper()
-	st, err := d.Client.Points(context.Background(), id, 0, 0)
+	return apiPoints(t, d.Client, id)
+}
+
+func apiPoints(t *testing.T, c *client.Client, id string) []client.Point {
+	t.Helper()
+	st, err := c.Points(context.Background(), id, 0, 0)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -25,39 +31,32 @@ func readPoints(t *testing.T, d *servertest.Daemon, id string) []client.Point {
 	return out
 }
 
-// waitScanState polls a scan until it is in state (or fails the test after 20 s).
+// waitScanState polls a scan until it is in state.
 func waitScanState(t *testing.T, d *servertest.Daemon, id string, state client.State) client.Scan {
 	t.Helper()
-	deadline := time.Now().Add(20 * time.Second)
-	for {
-		s, err := d.Client.Scan(context.Background(), id)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if s.State == state {
-			return s
-		}
-		if time.Now().After(deadline) {
-			t.Fatalf("scan %s is %s (%s), waited for %s", id, s.State, s.Reason, state)
-		}
-		time.Sleep(5 * time.Millisecond)
-	}
+	return pollScan(t, d.Client, id, string(state), func(s client.Scan) bool { return s.State == state })
 }
 
 // waitScanPoints polls a running scan until it has at least n points.
 func waitScanPoints(t *testing.T, d *servertest.Daemon, id string, n int) client.Scan {
 	t.Helper()
-	deadline := time.Now().Add(20 * time.Second)
+	return pollScan(t, d.Client, id, fmt.Sprintf("%d points", n), func(s client.Scan) bool { return s.PointsDone >= n })
+}
+
+// pollScan polls a scan until ok holds, failing the test after 30 s or when the scan ends first.
+func pollScan(t *testing.T, c *client.Client, id, what string, ok func(client.Scan) bool) client.Scan {
+	t.Helper()
+	deadline := time.Now().Add(30 * time.Second)
 	for {
-		s, err := d.Client.Scan(context.Background(), id)
+		s, err := c.Scan(context.Background(), id)
 		if err != nil {
 			t.Fatal(err)
 		}
-		if s.PointsDone >= n {
+		if ok(s) {
 			return s
 		}
 		if s.State.Terminal() || time.Now().After(deadline) {
-			t.Fatalf("scan %s is %s with %d points, waited for %d", id, s.State, s.PointsDone, n)
+			t.Fatalf("scan %s is %s with %d points (%s); waited for %s", id, s.State, s.PointsDone, s.Reason, what)
 		}
 		time.Sleep(5 * time.Millisecond)
 	}
