@@ -323,6 +323,14 @@ func (e *Engine) alignScan(ctx context.Context, out *Alignment, axis string, fro
 	e.running = nil
 	e.mu.Unlock()
 	if final := en.hub.record(); final.State != scan.Done {
+		if !final.State.Terminal() {
+			// A paused alignment scan would hold the queue for a routine that has given up: it ends here.
+			if _, err := e.setState(en, func(r *scan.Record) {
+				r.State, r.Reason, r.Ended = scan.Cancelled, "the alignment stopped: "+final.Reason, e.now().UTC()
+			}); err != nil {
+				e.log.Warn("cannot store the end of an alignment scan", "scan", rec.ID, "err", err)
+			}
+		}
 		return nil, fmt.Errorf("alignment, %s: scan %s ended %s: %s", what, rec.ID, final.State, final.Reason)
 	}
 	var pts []*goniodv1.Point
