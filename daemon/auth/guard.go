@@ -64,7 +64,7 @@ type call struct {
 
 // Unary is the unary server interceptor.
 func (g *Guard) Unary(ctx context.Context, req any, info *grpc.UnaryServerInfo, handler grpc.UnaryHandler) (any, error) {
-	c, err := g.admit(ctx, info.FullMethod, req)
+	c, err := g.admit(ctx, info.FullMethod, req, false)
 	if err != nil {
 		return nil, err
 	}
@@ -81,7 +81,7 @@ func (g *Guard) Unary(ctx context.Context, req any, info *grpc.UnaryServerInfo, 
 
 // Stream is the stream server interceptor. Streams are authorised on the method alone.
 func (g *Guard) Stream(srv any, ss grpc.ServerStream, info *grpc.StreamServerInfo, handler grpc.StreamHandler) error {
-	c, err := g.admit(ss.Context(), info.FullMethod, nil)
+	c, err := g.admit(ss.Context(), info.FullMethod, nil, true)
 	if err != nil {
 		return err
 	}
@@ -100,8 +100,9 @@ type identityStream struct {
 func (s *identityStream) Context() context.Context { return s.ctx }
 
 // admit identifies the caller, checks the rate and the role. Refusals of control calls and failed
-// authentications are audited.
-func (g *Guard) admit(ctx context.Context, method string, req any) (call, error) {
+// authentications are audited. Failed authentications count against the peer host's rate; stream starts that
+// pass are bounded by the number of open streams instead of the rate.
+func (g *Guard) admit(ctx context.Context, method string, req any, stream bool) (call, error) {
 	c := call{method: method, peer: peerAddr(ctx)}
 	c.key = peerHost(c.peer)
 	need, known := Required(method, req)
@@ -115,10 +116,13 @@ func (g *Guard) admit(ctx context.Context, method string, req any) (call, error)
 		return c, err
 	}
 	c.id = id
-	if id.Via != "none" {
+	switch {
+	case id.Via != "none":
 		c.key = id.Via + ":" + id.Name
+	case isLoopback(c.peer):
+		c.key = "connection:" + c.peer // local users without tokens: each connection on its own
 	}
-	if !g.lim.allow(c.key) {
+	if !stream && !g.lim.allow(c.key) {
 		err := status.Errorf(codes.ResourceExhausted, "%s sends more than %g requests per second; slow down", id.Name, g.lim.lim.RequestsPerSecond)
 		if need >= Operator {
 			g.audit(c, req, nil, err, 0)
@@ -186,6 +190,12 @@ func peerAddr(ctx context.Context) string {
 		return p.Addr.String()
 	}
 	return "unknown"
+}
+
+func isLoopback(addr string) bool {
+	host, _, err := net.SplitHostPort(addr)
+	ip := net.ParseIP(host)
+	return err == nil && ip != nil && ip.IsLoopback()
 }
 
 func peerHost(addr string) string {

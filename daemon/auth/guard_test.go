@@ -256,3 +256,35 @@ func TestGuardStreams(t *testing.T) {
 		t.Errorf("stream after the first closed: %v", err)
 	}
 }
+
+func peerCtx(addr string) context.Context {
+	ap, err := net.ResolveTCPAddr("tcp", addr)
+	if err != nil {
+		panic(err)
+	}
+	return peer.NewContext(context.Background(), &peer.Peer{Addr: ap})
+}
+
+// TestGuardRateKeys: without tokens, each loopback connection has its own budget, while connections from one
+// network host share one; stream starts count against the open-stream limit, not the rate.
+func TestGuardRateKeys(t *testing.T) {
+	g, _, _ := newTestGuard(t, false, Limits{RequestsPerSecond: 0.001, Burst: 2})
+	get := goniodv1.Instrument_GetState_FullMethodName
+	for _, addr := range []string{"127.0.0.1:1000", "127.0.0.1:1000", "127.0.0.1:2000", "127.0.0.1:2000", "192.0.2.7:1000", "192.0.2.7:2000"} {
+		if _, err := unary(g, peerCtx(addr), get, nil); err != nil {
+			t.Fatalf("%s: %v", addr, err)
+		}
+	}
+	if _, err := unary(g, peerCtx("127.0.0.1:1000"), get, nil); status.Code(err) != codes.ResourceExhausted {
+		t.Errorf("third call on one loopback connection with a burst of 2: %v", err)
+	}
+	if _, err := unary(g, peerCtx("192.0.2.7:3000"), get, nil); status.Code(err) != codes.ResourceExhausted {
+		t.Errorf("third call from one network host over a new connection: %v", err)
+	}
+	info := &grpc.StreamServerInfo{FullMethod: goniodv1.Scans_WatchScan_FullMethodName, IsServerStream: true}
+	for i := range 10 {
+		if err := g.Stream(nil, fakeStream{ctx: peerCtx("192.0.2.7:4000")}, info, func(any, grpc.ServerStream) error { return nil }); err != nil {
+			t.Fatalf("stream %d refused by the rate limit: %v", i, err)
+		}
+	}
+}

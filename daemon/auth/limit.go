@@ -5,11 +5,11 @@ import (
 	"time"
 )
 
-// Limits bound what one caller (a token's name, a client certificate's name, or else a peer host) may ask.
-// Zero fields mean no limit.
+// Limits bound what one caller (a token's name, a client certificate's name, else a peer host, or a
+// connection from loopback) may ask. Zero fields mean no limit.
 type Limits struct {
-	// RequestsPerSecond is the sustained rate of calls (unary calls and stream starts); Burst is how many may
-	// come at once.
+	// RequestsPerSecond is the sustained rate of unary calls and of failed authentications; Burst is how many
+	// may come at once.
 	RequestsPerSecond float64
 	Burst             int
 	// Streams is how many streams (watches, point reads) may be open at once.

@@ -64,7 +64,8 @@ type InstrumentFile struct {
 type Limits struct {
 	MaxPoints int           `yaml:"max_points"`
 	MaxDwell  time.Duration `yaml:"max_dwell"`
-	// Per caller (token name, client certificate name, or peer host): sustained calls per second and burst
+	// Per caller (token name, client certificate name, else peer host or loopback connection): unary calls per
+	// second and burst
 	// (0: defaults 100/s and 200; negative: no rate limit), and open streams (0: default 2048; negative: none).
 	RequestsPerSecond float64 `yaml:"requests_per_second"`
 	RequestBurst      int     `yaml:"request_burst"`
