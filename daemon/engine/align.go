@@ -375,7 +375,8 @@ func (e *Engine) applyStoredAlignment() error {
 		offsets[o.Axis] = o.OffsetDeg
 	}
 	if err := e.ctl.SetZeroOffsets(offsets); err != nil {
-		return fmt.Errorf("stored alignment of %s: %w", a.Time.Format(time.RFC3339), err)
+		return fmt.Errorf("stored alignment of %s does not fit the instrument (align again, or remove %s): %w",
+			a.Time.Format(time.RFC3339), e.store.AlignmentPath(), err)
 	}
 	e.log.Info("stored alignment applied (it overrides the configuration file's zero offsets)",
 		"from", a.Time.Format(time.RFC3339), "offsets", offsets, "reference", a.Reference)

@@ -225,6 +225,9 @@ func (s *Store) SaveAlignment(v any) error {
 	return nil
 }
 
+// AlignmentPath is the file that keeps the stored alignment.
+func (s *Store) AlignmentPath() string { return filepath.Join(s.dir, alignFile) }
+
 // LoadAlignment reads the stored alignment into v; found is false when none was stored.
 func (s *Store) LoadAlignment(v any) (found bool, err error) {
 	b, err := os.ReadFile(filepath.Join(s.dir, alignFile))
