@@ -10,25 +10,13 @@ import (
 	"time"
 
 	"goniod/daemon/config"
+	"goniod/daemon/server/servertest"
 )
-
-// needProgram finds an external program; without it the test skips locally and fails in CI.
-func needProgram(t *testing.T, name string) string {
-	t.Helper()
-	path, err := exec.LookPath(name)
-	if err != nil {
-		if os.Getenv("CI") != "" {
-			t.Fatalf("%s is needed in CI (Debian package prometheus): %v", name, err)
-		}
-		t.Skipf("%s not installed (Debian package prometheus); CI runs this test", name)
-	}
-	return path
-}
 
 // TestDeployPrometheusFiles checks the scrape configuration and alerting rules with promtool, and runs the
 // rules' unit tests.
 func TestDeployPrometheusFiles(t *testing.T) {
-	promtool := needProgram(t, "promtool")
+	promtool := servertest.NeedProgram(t, "promtool", "prometheus")
 	for _, args := range [][]string{
 		{"check", "config", "prometheus.yml"},
 		{"check", "rules", "goniod-alerts.yml"},

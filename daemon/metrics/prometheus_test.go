@@ -21,19 +21,6 @@ import (
 	"goniod/daemon/server/servertest"
 )
 
-// needProgram finds an external program; without it the test skips locally and fails in CI.
-func needProgram(t *testing.T, name string) string {
-	t.Helper()
-	path, err := exec.LookPath(name)
-	if err != nil {
-		if os.Getenv("CI") != "" {
-			t.Fatalf("%s is needed in CI (Debian package prometheus): %v", name, err)
-		}
-		t.Skipf("%s not installed (Debian package prometheus); CI runs this test", name)
-	}
-	return path
-}
-
 // startScan starts a long coupled scan with high voltage on and waits for its first points.
 func startScan(t *testing.T, d *servertest.Daemon) client.Scan {
 	t.Helper()
@@ -76,7 +63,7 @@ func scrape(t *testing.T, addr string) []byte {
 // TestExpositionOfARunningDaemon scrapes a daemon during a scan: promtool check metrics finds nothing to
 // complain about, and every metric the monitoring relies on is there.
 func TestExpositionOfARunningDaemon(t *testing.T) {
-	promtool := needProgram(t, "promtool")
+	promtool := servertest.NeedProgram(t, "promtool", "prometheus")
 	d := servertest.Start(t, servertest.WithSim("speed", 20.0))
 	startScan(t, d)
 	if _, err := d.Client.State(context.Background()); err != nil { // a gRPC call for the gRPC metrics
@@ -143,7 +130,7 @@ func promQuery(base, query string, at time.Time) ([]float64, error) {
 // lets it scrape a daemon running a simulated scan, and reads the count rate back through the query API: it
 // must be the rate of the point stored last before the scrape.
 func TestRealPrometheusScrapesTheCountRate(t *testing.T) {
-	prom := needProgram(t, "prometheus")
+	prom := servertest.NeedProgram(t, "prometheus", "prometheus")
 	d := servertest.Start(t, servertest.WithSim("speed", 20.0), servertest.WithSim("seed", int64(8)))
 	s := startScan(t, d)
 	dir := t.TempDir()

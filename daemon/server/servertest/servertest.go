@@ -10,6 +10,7 @@ import (
 	"log/slog"
 	"net"
 	"os"
+	"os/exec"
 	"sync"
 	"testing"
 	"time"
@@ -172,4 +173,18 @@ type testWriter struct{ t testing.TB }
 func (w testWriter) Write(b []byte) (int, error) {
 	w.t.Log(string(b))
 	return len(b), nil
+}
+
+// NeedProgram finds an external program the test needs (promtool, prometheus…). Without it the test is
+// skipped, unless the environment variable CI is set: then it fails, so that CI never skips it silently.
+func NeedProgram(t testing.TB, name, debianPackage string) string {
+	t.Helper()
+	path, err := exec.LookPath(name)
+	if err != nil {
+		if os.Getenv("CI") != "" {
+			t.Fatalf("%s is needed in CI (Debian package %s): %v", name, debianPackage, err)
+		}
+		t.Skipf("%s not installed (Debian package %s); CI runs this test", name, debianPackage)
+	}
+	return path
 }
