@@ -5,7 +5,6 @@ package engine
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"log/slog"
 	"sort"
@@ -222,7 +221,7 @@ func (e *Engine) Running() (scan.Record, bool) {
 	return e.running.hub.record(), true
 }
 
-// ErrManual is returned when a manual operation meets a running or paused scan.
+// errManualBusy is returned when a manual operation meets a running or paused scan, or another manual one.
 var errManualBusy = scan.ErrBusy
 
 // Manual runs fn while no scan runs, keeping the queue from starting one meanwhile. A running or paused scan
@@ -274,5 +273,3 @@ func (e *Engine) ReadPoints(ctx context.Context, id string, from, limit int, fn 
 	}
 	return e.store.ReadPoints(ctx, id, from, n, fn)
 }
-
-var errStopped = errors.New("stopped")
