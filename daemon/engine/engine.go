@@ -5,6 +5,7 @@ package engine
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"log/slog"
 	"sort"
@@ -118,16 +119,27 @@ func (e *Engine) recover(rec *scan.Record) (int, error) {
 	durable := rec.PointsDone
 	if !rec.State.Terminal() && rec.State != scan.Held {
 		app, got, err := e.store.OpenAppender(rec.ID)
-		if err != nil {
+		switch {
+		case errors.Is(err, store.ErrDamaged):
+			// One damaged file must not keep the daemon from starting: the scan fails, its file stays as it is.
+			rec.State, rec.Ended = scan.Failed, e.now().UTC()
+			reason = ""
+			rec.Reason = "found damaged at start, the file is left as it was for inspection: " + err.Error()
+			log.Error("points file damaged; scan failed", "err", err)
+		case err != nil:
 			return 0, fmt.Errorf("recover scan %s: %w", rec.ID, err)
+		default:
+			app.Close()
+			if got.DroppedBytes > 0 {
+				log.Warn("dropped a torn last line of the points file", "bytes", got.DroppedBytes, "points", got.Points)
+			}
+			durable = got.Points
 		}
-		app.Close()
-		if got.DroppedBytes > 0 {
-			log.Warn("dropped a torn last line of the points file", "bytes", got.DroppedBytes, "points", got.Points)
+	}
+	if rec.State.Terminal() || rec.State == scan.Held {
+		if n, err := e.store.CountPoints(rec.ID); err == nil {
+			durable = n
 		}
-		durable = got.Points
-	} else if n, err := e.store.CountPoints(rec.ID); err == nil {
-		durable = n
 	}
 	if reason != "" {
 		rec.Reason = fmt.Sprintf("%s; %d points durable; resume to continue", reason, durable)

@@ -4,6 +4,8 @@ import (
 	"context"
 	"errors"
 	"math"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 	"time"
@@ -341,5 +343,44 @@ func TestQueueRunsInOrder(t *testing.T) {
 			t.Errorf("scan %s started at %v, before %s ended at %v", id, s.Started.Format(time.StampMicro), prev.ID, prev.Ended.Format(time.StampMicro))
 		}
 		prev = s
+	}
+}
+
+// A points file damaged before its last line (not a crash's torn tail) fails its scan at start and is left
+// as it was; the daemon starts and the other scans go on.
+func TestDamagedPointsFileFailsOnlyItsScan(t *testing.T) {
+	d := servertest.Start(t, servertest.WithSim("speed", 20.0))
+	ctx := context.Background()
+	a, _ := d.Client.Submit(ctx, slowScan(30))
+	b, _ := d.Client.Submit(ctx, slowScan(3))
+	waitScanPoints(t, d, a.ID, 6)
+	d.Stop(t)
+	path := filepath.Join(d.Data, "scans", a.ID, "points.csv")
+	body, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.SplitAfter(string(body), "\n")
+	lines[3] = "3,damaged\n"
+	damaged := strings.Join(lines, "")
+	if err := os.WriteFile(path, []byte(damaged), 0o640); err != nil {
+		t.Fatal(err)
+	}
+	d = servertest.Start(t, servertest.WithSim("speed", 20.0), servertest.WithData(d.Data))
+	fa, err := d.Client.Scan(ctx, a.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if fa.State != client.Failed || !strings.Contains(fa.Reason, "damaged") {
+		t.Fatalf("scan with a damaged file is %s (%s), want failed naming the damage", fa.State, fa.Reason)
+	}
+	if after, _ := os.ReadFile(path); string(after) != damaged {
+		t.Error("the damaged file was changed")
+	}
+	if _, err := d.Client.Release(ctx, b.ID); err != nil {
+		t.Fatal(err)
+	}
+	if final, _ := d.WaitEnd(t, b.ID); final.State != client.Done {
+		t.Fatalf("the other scan ended %s", final.State)
 	}
 }

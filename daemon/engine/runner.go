@@ -89,8 +89,11 @@ func (e *Engine) execute(ctx context.Context, en *entry, log *slog.Logger) outco
 		return outcome{scan.Failed, "the request is no longer valid for the instrument: " + err.Error()}
 	}
 	app, got, err := e.store.OpenAppender(rec.ID)
-	if err != nil {
-		return outcome{scan.Failed, "cannot open the points file: " + err.Error()}
+	switch {
+	case errors.Is(err, store.ErrDamaged):
+		return outcome{scan.Failed, "the points file is damaged, not only at its end: " + err.Error()}
+	case err != nil:
+		return storageFailure("cannot open the points file", err)
 	}
 	defer app.Close()
 	if got.DroppedBytes > 0 {

@@ -12,6 +12,10 @@ import (
 	goniodv1 "goniod/proto/goniod/v1"
 )
 
+// ErrDamaged marks a points file whose content is damaged beyond a torn last line (it needs a person, not a
+// retry).
+var ErrDamaged = errors.New("points file damaged")
+
 // appendFile is what an Appender needs of its file (an *os.File; tests put a failing one in its place).
 type appendFile interface {
 	io.Writer
@@ -80,12 +84,15 @@ func (s *Store) OpenAppender(id string) (*Appender, Recovered, error) {
 func scanPoints(f *os.File) (table *goniodv1.PointTable, count int, good, total int64, err error) {
 	r := bufio.NewReaderSize(f, 1<<16)
 	header, err := r.ReadBytes('\n')
+	if err == io.EOF {
+		return nil, 0, 0, 0, fmt.Errorf("%w: no complete header line", ErrDamaged)
+	}
 	if err != nil {
-		return nil, 0, 0, 0, fmt.Errorf("no complete header line: %w", err)
+		return nil, 0, 0, 0, err
 	}
 	table, err = goniodv1.ParsePointTable(string(header))
 	if err != nil {
-		return nil, 0, 0, 0, err
+		return nil, 0, 0, 0, fmt.Errorf("%w: %w", ErrDamaged, err)
 	}
 	good = int64(len(header))
 	total = good
@@ -95,7 +102,7 @@ func scanPoints(f *os.File) (table *goniodv1.PointTable, count int, good, total 
 		total += int64(len(line))
 		if len(line) > 0 {
 			if bad != nil {
-				return nil, 0, 0, 0, fmt.Errorf("point %d is damaged and not the last line: %w", count, bad)
+				return nil, 0, 0, 0, fmt.Errorf("%w: point %d is damaged and not the last line: %w", ErrDamaged, count, bad)
 			}
 			switch {
 			case line[len(line)-1] != '\n':

@@ -2,6 +2,7 @@ package store
 
 import (
 	"context"
+	"errors"
 	"log/slog"
 	"os"
 	"strings"
@@ -121,7 +122,7 @@ func TestDamagedMiddleLineIsAnError(t *testing.T) {
 	lines := strings.SplitAfter(string(b), "\n")
 	lines[2] = "garbage\n"
 	os.WriteFile(s.PointsPath(id), []byte(strings.Join(lines, "")), 0o640)
-	if _, _, err := s.OpenAppender(id); err == nil || !strings.Contains(err.Error(), "not the last line") {
+	if _, _, err := s.OpenAppender(id); !errors.Is(err, ErrDamaged) || !strings.Contains(err.Error(), "not the last line") {
 		t.Fatalf("got %v, want a refusal", err)
 	}
 	after, _ := os.ReadFile(s.PointsPath(id))
