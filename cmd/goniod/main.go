@@ -55,6 +55,8 @@ type flags struct {
 	simSeed                              int64
 	simSpeed                             float64
 	simAnode, simCrystal                 string
+	serial, profile                      string
+	baud                                 int
 	tlsCert, tlsKey, tlsClientCA, tokens string
 	insecure                             bool
 	logFormat, logLevel, logFile         string
@@ -68,6 +70,7 @@ func parseFlags(args []string, stderr io.Writer) (*flags, error) {
 	fs.Usage = func() {
 		fmt.Fprintf(stderr, "goniod: data-acquisition daemon for X-ray goniometer/counter instruments\n\n"+
 			"Usage:\n  goniod --sim [flags]            run on the built-in simulated instrument\n"+
+			"  goniod --serial DEVICE [flags]  run on an instrument on a serial port (goniosim, or real hardware)\n"+
 			"  goniod --config FILE [flags]    run as configured (flags override the file)\n\nFlags:\n")
 		fs.PrintDefaults()
 	}
@@ -80,6 +83,9 @@ func parseFlags(args []string, stderr io.Writer) (*flags, error) {
 	fs.Float64Var(&f.simSpeed, "sim-speed", 1, "simulator: simulated seconds per wall second")
 	fs.StringVar(&f.simAnode, "sim-anode", "Cu", "simulator: anode element (Cr, Fe, Co, Cu, Mo, Ag, W)")
 	fs.StringVar(&f.simCrystal, "sim-crystal", "LiF", "simulator: analyzer crystal (LiF, NaCl, KCl, KBr, Si111, Ge111, graphite, mica)")
+	fs.StringVar(&f.serial, "serial", "", "use the serial driver on this `device` (/dev/ttyUSB0, COM3, a goniosim link): drivers.serial.device")
+	fs.IntVar(&f.baud, "baud", 115200, "serial: baud rate (drivers.serial.baud)")
+	fs.StringVar(&f.profile, "profile", "", "serial: protocol profile `file` (drivers.serial.profile; default: goniod's own protocol)")
 	fs.StringVar(&f.tlsCert, "tls-cert", "", "TLS server certificate `file` (PEM)")
 	fs.StringVar(&f.tlsKey, "tls-key", "", "TLS server key `file` (PEM)")
 	fs.StringVar(&f.tlsClientCA, "tls-client-ca", "", "require client certificates signed by this CA `file` (PEM)")
@@ -133,8 +139,31 @@ func (f *flags) merge() (*config.File, error) {
 	if set["insecure"] {
 		cfg.Security.Insecure = f.insecure
 	}
+	if set["serial"] {
+		if f.sim {
+			return nil, fmt.Errorf("--sim and --serial exclude each other")
+		}
+		cfg.Driver = "serial"
+	}
 	if f.sim || cfg.Driver == "" {
 		cfg.Driver = "sim"
+	}
+	if (set["baud"] || set["profile"]) && cfg.Driver != "serial" {
+		return nil, fmt.Errorf("--baud and --profile are for the serial driver (--serial DEVICE), not %q", cfg.Driver)
+	}
+	if cfg.Driver == "serial" {
+		for name, key := range map[string]string{"serial": "device", "baud": "baud", "profile": "profile"} {
+			if !set[name] {
+				continue
+			}
+			var v any = f.fs.Lookup(name).Value.String()
+			if name == "baud" {
+				v = f.baud
+			}
+			if err := cfg.SetDriverField("serial", key, v); err != nil {
+				return nil, err
+			}
+		}
 	}
 	if cfg.Driver == "sim" {
 		for name, key := range map[string]string{"sim-seed": "seed", "sim-speed": "speed", "sim-anode": "anode", "sim-crystal": "crystal"} {
