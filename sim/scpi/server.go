@@ -326,23 +326,18 @@ func newPacer(baud int) *pacer {
 func (p *pacer) on() bool { return p.byteTime > 0 }
 
 // arrive returns when a line of n bytes whose first byte was seen at first has fully arrived.
-func (p *pacer) arrive(first time.Time, n int) time.Time {
-	start := first
-	if p.inFree.After(start) {
-		start = p.inFree
-	}
-	p.inFree = start.Add(time.Duration(n) * p.byteTime)
-	return p.inFree
-}
+func (p *pacer) arrive(first time.Time, n int) time.Time { return p.take(&p.inFree, first, n) }
 
 // send returns when a reply of n bytes, begun at now or when the line is free, has fully gone out.
-func (p *pacer) send(now time.Time, n int) time.Time {
-	start := now
-	if p.outFree.After(start) {
-		start = p.outFree
+func (p *pacer) send(now time.Time, n int) time.Time { return p.take(&p.outFree, now, n) }
+
+// take holds one direction of the line for n bytes from start, or from when it is next free.
+func (p *pacer) take(free *time.Time, start time.Time, n int) time.Time {
+	if free.After(start) {
+		start = *free
 	}
-	p.outFree = start.Add(time.Duration(n) * p.byteTime)
-	return p.outFree
+	*free = start.Add(time.Duration(n) * p.byteTime)
+	return *free
 }
 
 // sleepUntil waits until t or until ctx ends; the last millisecond is slept precisely where the system can.
