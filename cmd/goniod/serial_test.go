@@ -70,3 +70,21 @@ func TestSerialDeviceMissing(t *testing.T) {
 		t.Errorf("exit %d, log:\n%s", code, stderr.String())
 	}
 }
+
+// TestSerialBadProfile: a profile with a mistake stops goniod at start with the file, line and field named.
+func TestSerialBadProfile(t *testing.T) {
+	dir := t.TempDir()
+	prof := filepath.Join(dir, "bench.yaml")
+	text := "name: bench\ninstrument:\n  axes: [{name: theta, min_deg: 0, max_deg: 90, resolution_deg: 0.01}]\n" +
+		"  channels: [detector]\noperations:\n  move: {send: \"goto {deg}\", reply: '^(?P<deg>.+)$', units: {deg: mA}}\n"
+	if err := os.WriteFile(prof, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	var stderr bytes.Buffer
+	code := run([]string{"--serial", "/dev/no-such-tty", "--profile", prof, "--listen", "127.0.0.1:0",
+		"--metrics-listen", "127.0.0.1:0", "--data", filepath.Join(dir, "data")}, &stderr)
+	want := "profile " + prof + " line 6: operations.move.units.deg: unit \"mA\" is not an angle unit"
+	if log := strings.ReplaceAll(stderr.String(), `\"`, `"`); code == 0 || !strings.Contains(log, want) {
+		t.Errorf("exit %d, log:\n%s\nwant it to say %q", code, log, want)
+	}
+}

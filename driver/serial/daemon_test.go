@@ -130,6 +130,7 @@ func TestDaemonSurvivesFaults(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
+			t.Parallel()
 			dev := startDevice(t, sim.Config{Seed: 5, Speed: 200}, scpi.Options{Seed: 5})
 			d := startDaemon(t, dev)
 			s := submit(t, d, client.ScanRequest{Kind: client.Coupled, From: 20, To: 30, Step: 0.05, Dwell: time.Second,

@@ -31,6 +31,7 @@ func at(t *testing.T, drv *serial.Driver, theta, twoTheta float64) {
 
 // TestGarbledReplyRetried: a garbled reply to an idempotent operation is retried and the call succeeds.
 func TestGarbledReplyRetried(t *testing.T) {
+	t.Parallel()
 	dev := startDevice(t, sim.Config{}, scpi.Options{Seed: 2})
 	drv := openDriver(t, dev, nil)
 	at(t, drv, 12, 24)
@@ -47,6 +48,7 @@ func TestGarbledReplyRetried(t *testing.T) {
 // TestNoiseDuringCount: garbage on the line during a count spoils its reply; a count is not retried, the call
 // fails without taking the link down, and the next exchange is back in step.
 func TestNoiseDuringCount(t *testing.T) {
+	t.Parallel()
 	dev := startDevice(t, sim.Config{}, scpi.Options{Seed: 3})
 	drv := openDriver(t, dev, nil)
 	at(t, drv, 12, 24)
@@ -66,6 +68,7 @@ func TestNoiseDuringCount(t *testing.T) {
 // TestStalledReply: a reply that comes too late times out; an idempotent call is retried once the line is
 // back in step, a count is not.
 func TestStalledReply(t *testing.T) {
+	t.Parallel()
 	dev := startDevice(t, sim.Config{}, scpi.Options{})
 	drv := openDriver(t, dev, nil)
 	at(t, drv, 12, 24)
@@ -89,6 +92,7 @@ func TestStalledReply(t *testing.T) {
 // TestLinkDownAndBack: an instrument that stops answering takes the link down after the allowed failures;
 // when it answers again the driver reconnects by itself and switches high voltage off.
 func TestLinkDownAndBack(t *testing.T) {
+	t.Parallel()
 	dev := startDevice(t, sim.Config{}, scpi.Options{})
 	drv := openDriver(t, dev, func(s *serial.Settings) { s.Failures = 2 })
 	ctx := ctxFor(t, 20*time.Second)
@@ -126,6 +130,7 @@ func waitUp(t *testing.T, drv *serial.Driver, within time.Duration) {
 // TestDeviceVanishes: the device node goes away mid-count (a USB adapter pulled) and comes back at the same
 // path: the count fails with ErrLinkDown at once, the driver reconnects, high voltage is off.
 func TestDeviceVanishes(t *testing.T) {
+	t.Parallel()
 	dev := startDevice(t, sim.Config{}, scpi.Options{})
 	drv := openDriver(t, dev, nil)
 	ctx := ctxFor(t, 20*time.Second)
@@ -156,6 +161,7 @@ func TestDeviceVanishes(t *testing.T) {
 // TestKeepalive: the driver feeds the instrument's watchdog while connected, by itself; once it is closed the
 // watchdog switches high voltage off.
 func TestKeepalive(t *testing.T) {
+	t.Parallel()
 	dev := startDevice(t, sim.Config{Watchdog: 400 * time.Millisecond}, scpi.Options{})
 	drv := openDriver(t, dev, func(s *serial.Settings) { s.Keepalive = 100 * time.Millisecond })
 	if err := drv.SetHighVoltage(ctxFor(t, 5*time.Second), true); err != nil {
@@ -174,6 +180,7 @@ func TestKeepalive(t *testing.T) {
 
 // TestOpenErrors: a wrong path, a port in use and an instrument that does not answer give clear errors.
 func TestOpenErrors(t *testing.T) {
+	t.Parallel()
 	ctx := ctxFor(t, 20*time.Second)
 	open := func(dev string) error {
 		d, err := serial.Open(ctx, serial.DefaultProfile(), serial.Settings{Device: dev, ReadTimeout: 200 * time.Millisecond}, serial.OpenPort, nil)
@@ -200,5 +207,17 @@ func TestOpenErrors(t *testing.T) {
 	}
 	if err := open(""); err == nil || !strings.Contains(err.Error(), "drivers.serial.device") {
 		t.Errorf("no device: %v", err)
+	}
+}
+
+// TestPortSettings: parity, stop bits, baud and a CR LF line ending go through go.bug.st/serial to the port.
+func TestPortSettings(t *testing.T) {
+	t.Parallel()
+	dev := startDevice(t, sim.Config{}, scpi.Options{})
+	drv := openDriver(t, dev, func(s *serial.Settings) {
+		s.Baud, s.Parity, s.StopBits, s.DataBits, s.LineEnding = 9600, "even", 2, 8, "crlf"
+	})
+	if id, err := drv.Identify(ctxFor(t, 5*time.Second)); err != nil || !strings.HasPrefix(id, "goniod,") {
+		t.Errorf("Identify with 9600 8E2 and CR LF = %q, %v", id, err)
 	}
 }

@@ -231,7 +231,7 @@ func (c *conn) resync(ctx context.Context) error {
 			break
 		}
 	}
-	c.buf = c.buf[:0]
+	c.buf, c.extra = c.buf[:0], 0 // replies still owed were drained with the rest
 	if err := c.port.ResetInputBuffer(); err != nil {
 		return &failure{what: "port", port: true, err: err}
 	}
