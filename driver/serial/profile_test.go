@@ -183,6 +183,23 @@ func TestReplies(t *testing.T) {
 	if err != nil || len(got) != 2 || got[0]["counts"] != uint64(1234) || got[1]["counts"] != uint64(56) {
 		t.Errorf("n=1234 n=56 = %v, %v; want two channels", got, err)
 	}
+	if got, err := ex.errorReply.parse("fail 12", ex.bools); err != nil || got[0]["code"] != int64(12) {
+		t.Errorf("error reply without a message = %v, %v", got, err)
+	}
+	if got, err := ex.ops["read_error"].reply.parse("12 ", ex.bools); err != nil || got[0]["message"] != "" {
+		t.Errorf("read_error with an empty message = %v, %v", got, err)
+	}
+	opt, err := compileReply(`^(?P<code>\d*)(?P<message>.*)$`, map[string]kind{"code": kindInt, "message": kindText}, nil, nil, "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got, err := opt.parse("no code", ex.bools); err != nil || got[0]["code"] != nil {
+		t.Errorf("an empty optional code = %v, %v; want it absent", got, err)
+	}
+	req, _ := compileReply(`^at (?P<deg>-?\d*)$`, map[string]kind{"deg": kindAngle}, []string{"deg"}, nil, "")
+	if got, err := req.parse("at ", ex.bools); err == nil {
+		t.Errorf("an empty required angle accepted as %v", got)
+	}
 	def := DefaultProfile()
 	for _, bad := range []string{"", "1,1,1", "2,1", "1;1", " 1,1"} {
 		if got, err := def.ops["read_status"].reply.parse(bad, def.bools); err == nil {
@@ -260,7 +277,8 @@ func FuzzProfile(f *testing.F) {
 	})
 }
 
-// FuzzReply: the reply parser never panics, and what it accepts holds finite numbers of the right types.
+// FuzzReply: the reply parser never panics, and what it accepts holds every required group, as finite numbers
+// of the right types.
 func FuzzReply(f *testing.F) {
 	for _, s := range []string{"1,1", "22.5", "1578", "30,0.8,1", `ERR -222,"Data out of range"`, "Cu,LiF(200),0.201315,35,1,35,0.0001,0", "1e308,1e309", "\xff"} {
 		f.Add(s)
@@ -277,6 +295,11 @@ func FuzzReply(f *testing.F) {
 				continue
 			}
 			for _, vals := range got {
+				for name := range pat.required {
+					if _, ok := vals[name]; !ok {
+						t.Fatalf("%q accepted without the required %s", reply, name)
+					}
+				}
 				for name, v := range vals {
 					switch v := v.(type) {
 					case float64:

@@ -15,6 +15,8 @@ type pattern struct {
 	groups []group
 	// split, when set, makes the reply a list: it is cut at split and each item matched on its own.
 	split string
+	// required groups must match something; an optional number left empty is simply absent.
+	required map[string]bool
 }
 
 type group struct {
@@ -31,7 +33,7 @@ func compileReply(expr string, allowed map[string]kind, required []string, units
 	if err != nil {
 		return nil, fmt.Errorf("bad pattern: %v", err)
 	}
-	p := &pattern{re: re, split: split}
+	p := &pattern{re: re, split: split, required: map[string]bool{}}
 	for i, name := range re.SubexpNames() {
 		if name == "" {
 			continue
@@ -50,6 +52,7 @@ func compileReply(expr string, allowed map[string]kind, required []string, units
 		if !slices.ContainsFunc(p.groups, func(g group) bool { return g.name == r }) {
 			return nil, fmt.Errorf("the pattern needs a group (?P<%s>...)", r)
 		}
+		p.required[r] = true
 	}
 	return p, nil
 }
@@ -68,6 +71,12 @@ func (p *pattern) parse(reply string, b booleans) ([]values, error) {
 		}
 		vals := values{}
 		for _, g := range p.groups {
+			if strings.TrimSpace(m[g.index]) == "" && g.kind != kindText {
+				if p.required[g.name] {
+					return nil, fmt.Errorf("reply %q: no %s", clip(reply), g.name)
+				}
+				continue
+			}
 			v, err := g.value(m[g.index], b)
 			if err != nil {
 				return nil, fmt.Errorf("reply %q: %s: %v", clip(reply), g.name, err)
