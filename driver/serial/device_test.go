@@ -4,8 +4,6 @@ package serial_test
 
 import (
 	"context"
-	"io"
-	"log/slog"
 	"os"
 	"path/filepath"
 	"testing"
@@ -63,23 +61,6 @@ func (d *device) waitLink(t testing.TB) {
 	}
 	t.Fatalf("no device at %s after 3 s", d.link)
 }
-
-// testLog is the driver's log: the test log with GONIOD_TEST_LOG set, else nothing.
-func testLog(t testing.TB) *slog.Logger {
-	if os.Getenv("GONIOD_TEST_LOG") == "" {
-		return slog.New(slog.DiscardHandler)
-	}
-	return slog.New(slog.NewTextHandler(testWriter{t}, &slog.HandlerOptions{Level: slog.LevelDebug}))
-}
-
-type testWriter struct{ t testing.TB }
-
-func (w testWriter) Write(b []byte) (int, error) {
-	w.t.Log(string(b))
-	return len(b), nil
-}
-
-var _ io.Writer = testWriter{}
 
 // openDriver opens the serial driver on the device with the built-in profile; fast timeouts keep fault
 // tests short.

@@ -5,6 +5,8 @@ import (
 	"context"
 	"errors"
 	"flag"
+	"io"
+	"log/slog"
 	"math"
 	"os"
 	"slices"
@@ -166,3 +168,20 @@ func TestFaultTranscript(t *testing.T) {
 		t.Errorf("LinkStatus = %+v; want down, 3 errors, 1 timeout", s)
 	}
 }
+
+// testLog is the driver's log: the test log with GONIOD_TEST_LOG set, else nothing.
+func testLog(t testing.TB) *slog.Logger {
+	if os.Getenv("GONIOD_TEST_LOG") == "" {
+		return slog.New(slog.DiscardHandler)
+	}
+	return slog.New(slog.NewTextHandler(testWriter{t}, &slog.HandlerOptions{Level: slog.LevelDebug}))
+}
+
+type testWriter struct{ t testing.TB }
+
+func (w testWriter) Write(b []byte) (int, error) {
+	w.t.Log(string(b))
+	return len(b), nil
+}
+
+var _ io.Writer = testWriter{}
