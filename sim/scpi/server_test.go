@@ -337,3 +337,40 @@ func TestParseFault(t *testing.T) {
 		}
 	}
 }
+
+// TestServePort: on a named serial port (here the slave side of a pseudo-terminal, opened through
+// go.bug.st/serial as a real port would be) the server answers; the test is the host on the other side.
+func TestServePort(t *testing.T) {
+	p, err := OpenPTY()
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer p.Close()
+	srv := NewServer(newInstrument(t, sim.Config{}), Options{})
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- srv.ServePort(ctx, p.Path, 115200) }()
+	defer func() {
+		cancel()
+		if err := <-done; err != nil {
+			t.Errorf("ServePort: %v", err)
+		}
+	}()
+	hostEnd := p.Conn()
+	if _, err := hostEnd.Write([]byte("SYST:ECHO? 42\n")); err != nil {
+		t.Fatal(err)
+	}
+	var got []byte
+	buf := make([]byte, 64)
+	_ = hostEnd.SetReadDeadline(time.Now().Add(3 * time.Second))
+	for !bytes.Contains(got, []byte("\n")) {
+		n, err := hostEnd.Read(buf)
+		if err != nil {
+			t.Fatalf("read %q: %v", got, err)
+		}
+		got = append(got, buf[:n]...)
+	}
+	if string(got) != "42\n" {
+		t.Errorf("reply %q, want 42", got)
+	}
+}
