@@ -140,3 +140,33 @@ func TestRecorder(t *testing.T) {
 	}
 	r.end()
 }
+
+// FuzzTranscript: the transcript parser never panics, and what it accepts formats and reads back the same.
+func FuzzTranscript(f *testing.F) {
+	f.Add(sample)
+	f.Add("> A\n<q \"\\x00\"\n<!\n")
+	f.Add("< before\n")
+	f.Fuzz(func(t *testing.T, text string) {
+		tr, err := ParseTranscript("fuzz", strings.NewReader(text))
+		if err != nil {
+			return
+		}
+		var b bytes.Buffer
+		if err := tr.Format(&b); err != nil {
+			t.Fatal(err)
+		}
+		again, err := ParseTranscript("formatted", &b)
+		if err != nil {
+			t.Fatalf("formatted transcript does not read back: %v\n%s", err, b.String())
+		}
+		if len(again.Steps) != len(tr.Steps) {
+			t.Fatalf("%d steps read back as %d", len(tr.Steps), len(again.Steps))
+		}
+		for i := range tr.Steps {
+			a, b := tr.Steps[i], again.Steps[i]
+			if a.Send != b.Send || !bytes.Equal(a.Reply, b.Reply) || a.Close != b.Close {
+				t.Fatalf("step %d: %+v read back as %+v", i, a, b)
+			}
+		}
+	})
+}

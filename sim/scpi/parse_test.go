@@ -116,3 +116,21 @@ func FuzzParse(f *testing.F) {
 		}
 	})
 }
+
+// FuzzParseFault: the fault parser (goniosim's --fault and control input) never panics, and what it accepts
+// reads back the same from its String form.
+func FuzzParseFault(f *testing.F) {
+	for _, s := range []string{"drop", "@2s drop=500ms", "#40 stall=3s", "noise=8", "door=open", "#1 trip", "garble=x", "@ mute"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		got, err := ParseFault(s)
+		if err != nil {
+			return
+		}
+		again, err := ParseFault(got.String())
+		if err != nil || again != got {
+			t.Fatalf("ParseFault(%q) = %+v; its String %q reads back as %+v, %v", s, got, got.String(), again, err)
+		}
+	})
+}
