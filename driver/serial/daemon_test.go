@@ -4,6 +4,7 @@ package serial_test
 
 import (
 	"context"
+	"fmt"
 	"math"
 	"strings"
 	"testing"
@@ -16,16 +17,23 @@ import (
 	"goniod/sim/scpi"
 )
 
-// startDaemon runs goniod with `driver: serial` on the device, configured the way a configuration file would.
+// startDaemon runs goniod configured by a configuration file with `driver: serial` on the device.
 func startDaemon(t *testing.T, dev *device) *servertest.Daemon {
 	t.Helper()
+	file, err := config.Parse("goniod.yaml", []byte(fmt.Sprintf(`
+driver: serial
+drivers:
+  serial:
+    device: %s
+    baud: 115200
+    read_timeout: 300ms
+    reconnect_max: 200ms
+`, dev.link)))
+	if err != nil {
+		t.Fatal(err)
+	}
 	return servertest.StartOn(t, nil, servertest.WithConfig(func(f *config.File) {
-		f.Driver = "serial"
-		for k, v := range map[string]any{"device": dev.link, "baud": 115200, "read_timeout": "300ms", "reconnect_max": "200ms"} {
-			if err := f.SetDriverField("serial", k, v); err != nil {
-				t.Fatal(err)
-			}
-		}
+		f.Driver, f.Drivers = file.Driver, file.Drivers
 	}))
 }
 
