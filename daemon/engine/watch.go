@@ -30,9 +30,8 @@ func (e *Engine) Watch(ctx context.Context, id string, from int, send func(Event
 		return err
 	}
 	w := &watch{e: e, id: id, h: en.hub, cursor: max(from, 0), send: send}
-	v := w.h.look(w.cursor, 0, ^uint64(0), nil) // the present record; earlier changes are not replayed
-	w.seen = v.version
-	rec := v.rec
+	rec, version := w.h.snapshot() // the present record; earlier changes are not replayed
+	w.seen = version
 	if err := send(Event{Record: &rec}); err != nil {
 		return err
 	}
@@ -90,9 +89,9 @@ func (w *watch) step(ctx context.Context) (done bool, err error) {
 			w.cursor++
 			return w.send(Event{Point: p})
 		})
-	case v.rec.State.Terminal():
+	case v.ended:
 		// Ended before the watch began (no change left to see): the record is the end.
-		rec := v.rec
+		rec := w.h.record()
 		return true, w.send(Event{Record: &rec, End: true})
 	}
 	select {

@@ -122,6 +122,103 @@ func (w *watchLog) take(ev engine.Event) error {
 // (they then read the store). The scan finishing proves the publisher never waits for a watcher; each watcher
 // must get every point from its start index, in order, exactly once, with the end event last. (Falling behind
 // the in-memory ring while the scan runs is TestWatchBehindTheRing; the cost of watchers to the scan's rate is
+// BenchmarkAcquisitionWithWatchers.)
+func TestWatchersDoNotHoldAcquisition(t *testing.T) {
+	const points, watchers, stalled, slow = 2000, 1000, 20, 30
+	r := startWatchRig(t)
+	rec, err := r.eng.Submit(timedScan(points))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+	defer cancel()
+	ended := make(chan struct{})
+	logs := make([]*watchLog, watchers)
+	var wg sync.WaitGroup
+	start := func(i, from int, pace func(n int)) {
+		logs[i] = &watchLog{from: from, next: from}
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			n := 0
+			err := r.eng.Watch(ctx, rec.ID, from, func(ev engine.Event) error {
+				pace(n)
+				n++
+				return logs[i].take(ev)
+			})
+			if err != nil && logs[i].err == nil {
+				logs[i].err = err
+			}
+		}()
+	}
+	live := func(int) {}
+	for i := range stalled {
+		start(i, 0, func(n int) {
+			if n == 1 {
+				<-ended // hold the first point until the scan is over
+			}
+		})
+	}
+	for i := stalled; i < stalled+slow; i++ {
+		start(i, 0, func(n int) {
+			if n%100 == 0 {
+				time.Sleep(time.Millisecond)
+			}
+		})
+	}
+	half := watchers / 2
+	for i := stalled + slow; i < half; i++ {
+		start(i, 0, live)
+	}
+	mid := waitPoints(t, r.eng, rec.ID, points/3)
+	for i := half; i < watchers; i++ {
+		from := 0
+		if i%2 == 1 {
+			from = (i * 7) % points // replay from a given index
+		}
+		start(i, from, live)
+	}
+	final := waitState(t, r.eng, rec.ID, scan.Done, time.Minute)
+	took := final.Ended.Sub(final.Started)
+	close(ended)
+	wg.Wait()
+	for i, l := range logs {
+		switch {
+		case l.err != nil:
+			t.Fatalf("watcher %d (from %d): %v", i, l.from, l.err)
+		case l.next != points || !l.end:
+			t.Fatalf("watcher %d (from %d) got points up to %d of %d, end %v", i, l.from, l.next, points, l.end)
+		case l.records[len(l.records)-1] != scan.Done:
+			t.Fatalf("watcher %d: last record %s", i, l.records[len(l.records)-1])
+		case i < half && (l.records[0] != scan.Queued && l.records[0] != scan.Running):
+			t.Fatalf("watcher %d started before the scan but first saw %v", i, l.records)
+		case i < half && l.records[0] == scan.Queued && (l.firstPoint != 2 || l.records[1] != scan.Running):
+			t.Fatalf("watcher %d: records %v, %d before the first point; want running before point 0", i, l.records, l.firstPoint)
+		}
+	}
+	t.Logf("%d points in %v (%.0f points/s) with %d watchers (%d stalled until the end, %d slow, %d joined after point %d)",
+		points, took.Round(time.Millisecond), float64(points)/took.Seconds(), watchers, stalled, slow, watchers-half, mid)
+}
+
+// waitPoints waits until a scan has at least n durable points and returns how many it has.
+func waitPoints(t testing.TB, eng *engine.Engine, id string, n int) int {
+	t.Helper()
+	deadline := time.Now().Add(time.Minute)
+	for {
+		rec, err := eng.Get(id)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if rec.PointsDone >= n || rec.State.Terminal() {
+			return rec.PointsDone
+		}
+		if time.Now().After(deadline) {
+			t.Fatalf("scan %s has %d points after a minute, want %d", id, rec.PointsDone, n)
+		}
+		time.Sleep(time.Millisecond)
+	}
+}
+
 // BenchmarkAcquisitionWithWatchers measures durable points per second of a timed scan (fsync per point) with 0,
 // 100 and 1,000 live watchers: at zero dwell (the simulator runs a million times faster than real time, so the
 // store and the daemon set the pace) and at a 20 ms dwell in real time. Compare the points/s figures.
