@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"log/slog"
 	"net/http"
 	"strings"
 	"sync"
@@ -13,6 +14,7 @@ import (
 
 	"goniod/client"
 	"goniod/daemon/config"
+	"goniod/daemon/server"
 	"goniod/daemon/server/servertest"
 	"goniod/sim"
 )
@@ -256,5 +258,17 @@ func TestWatchersOverGRPC(t *testing.T) {
 	close(errs)
 	for err := range errs {
 		t.Error(err)
+	}
+}
+
+// TestTLSSettingsIncomplete: a client CA or a key without a certificate is an error at start, not a daemon
+// that silently serves without TLS.
+func TestTLSSettingsIncomplete(t *testing.T) {
+	for _, sec := range []config.Security{{TLSClientCA: "ca.pem"}, {TLSKey: "key.pem"}, {TLSCert: "cert.pem"}} {
+		err := server.Run(context.Background(), server.Options{Config: &config.File{Driver: "sim", Data: t.TempDir(),
+			Listen: "127.0.0.1:0", MetricsListen: "127.0.0.1:0", Security: sec}, Log: slog.New(slog.DiscardHandler)})
+		if err == nil || !strings.Contains(err.Error(), "TLS") {
+			t.Errorf("%+v: %v, want an error about TLS", sec, err)
+		}
 	}
 }

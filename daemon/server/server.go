@@ -80,6 +80,12 @@ func Run(ctx context.Context, o Options) error {
 	if err != nil {
 		return err
 	}
+	var creds credentials.TransportCredentials
+	if cfg.Security.TLSCert != "" || cfg.Security.TLSKey != "" || cfg.Security.TLSClientCA != "" {
+		if creds, err = serverTLS(cfg.Security); err != nil {
+			return err
+		}
+	}
 	st, err := store.Open(cfg.Data, log)
 	if err != nil {
 		return err
@@ -150,11 +156,7 @@ func Run(ctx context.Context, o Options) error {
 		grpc.ConnectionTimeout(10 * time.Second),
 		grpc.KeepaliveEnforcementPolicy(keepalive.EnforcementPolicy{MinTime: 10 * time.Second, PermitWithoutStream: true}),
 		grpc.ChainUnaryInterceptor(gm.Unary, guard.Unary), grpc.ChainStreamInterceptor(gm.Stream, guard.Stream)}
-	if cfg.Security.TLSCert != "" || cfg.Security.TLSKey != "" {
-		creds, err := serverTLS(cfg.Security)
-		if err != nil {
-			return err
-		}
+	if creds != nil {
 		sopts = append(sopts, grpc.Creds(creds))
 		log.Info("TLS on", "client_certificates_required", cfg.Security.TLSClientCA != "")
 	}
