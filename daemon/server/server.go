@@ -151,16 +151,10 @@ func Run(ctx context.Context, o Options) error {
 	guard := auth.NewGuard(auth.Options{Tokens: tokens, Log: log.With("part", "audit"), Limits: callerLimits(cfg.Limits), OnControl: mon.Touch})
 	gm := metrics.NewGRPC(reg)
 
-	sopts := []grpc.ServerOption{grpc.MaxRecvMsgSize(maxRequestBytes), grpc.MaxSendMsgSize(maxMessageBytes),
-		grpc.MaxHeaderListSize(maxHeaderBytes), grpc.MaxConcurrentStreams(maxStreamsPerConn),
-		grpc.ConnectionTimeout(10 * time.Second),
-		grpc.KeepaliveEnforcementPolicy(keepalive.EnforcementPolicy{MinTime: 10 * time.Second, PermitWithoutStream: true}),
-		grpc.ChainUnaryInterceptor(gm.Unary, guard.Unary), grpc.ChainStreamInterceptor(gm.Stream, guard.Stream)}
 	if creds != nil {
-		sopts = append(sopts, grpc.Creds(creds))
 		log.Info("TLS on", "client_certificates_required", cfg.Security.TLSClientCA != "")
 	}
-	gs := grpc.NewServer(sopts...)
+	gs := grpc.NewServer(serverOptions(creds, gm, guard)...)
 	goniodv1.RegisterScansServer(gs, &api.ScanService{Engine: eng})
 	goniodv1.RegisterInstrumentServer(gs, &api.InstrumentService{Engine: eng, Controller: ctl, Version: o.Version})
 	goniodv1.RegisterAnalysisServer(gs, &api.AnalysisService{Scans: eng, Results: st, CrystalAxis: icfg.CrystalAxis()})
@@ -235,6 +229,20 @@ func Run(ctx context.Context, o Options) error {
 	_ = hsrv.Shutdown(shutCtx)
 	cancel()
 	return runErr
+}
+
+// serverOptions bound what the network can make the daemon hold, and put the gRPC metrics and the guard in
+// front of every call (the metrics first, so that refused calls are counted too).
+func serverOptions(creds credentials.TransportCredentials, gm *metrics.GRPC, guard *auth.Guard) []grpc.ServerOption {
+	opts := []grpc.ServerOption{grpc.MaxRecvMsgSize(maxRequestBytes), grpc.MaxSendMsgSize(maxMessageBytes),
+		grpc.MaxHeaderListSize(maxHeaderBytes), grpc.MaxConcurrentStreams(maxStreamsPerConn),
+		grpc.ConnectionTimeout(10 * time.Second),
+		grpc.KeepaliveEnforcementPolicy(keepalive.EnforcementPolicy{MinTime: 10 * time.Second, PermitWithoutStream: true}),
+		grpc.ChainUnaryInterceptor(gm.Unary, guard.Unary), grpc.ChainStreamInterceptor(gm.Stream, guard.Stream)}
+	if creds != nil {
+		opts = append(opts, grpc.Creds(creds))
+	}
+	return opts
 }
 
 // drain lets the running scan stop after its current point, waiting at most the shutdown timeout; after
