@@ -112,11 +112,30 @@ func (e *Engine) execute(ctx context.Context, en *entry, log *slog.Logger) outco
 	if out != nil {
 		return *out
 	}
-	r := &pointRunner{e: e, en: en, plan: plan, cfg: &cfg, app: app, hv: hv}
+	r := &pointRunner{e: e, en: en, plan: plan, cfg: &cfg, hv: hv}
 	if err := r.hold(ctx); err != nil {
 		return e.fault(ctx, err)
 	}
-	for i := app.Count(); i < plan.Len(); i++ {
+	r.commit = startCommitter(app, en.hub, func(batch []taken) {
+		rec := en.hub.record()
+		last := batch[len(batch)-1].p
+		e.ctl.NoteRate(last.RateCps, last.CorrectedRateCps)
+		for _, t := range batch {
+			e.obs.PointStored(&rec, t.p, t.overhead)
+		}
+	})
+	end := r.run(ctx, app.Count())
+	// Every point taken is stored (or the first storage failure reported) before the scan's state changes.
+	if err := r.commit.close(); err != nil {
+		return storageFailure("the data directory failed", err)
+	}
+	return end
+}
+
+// run takes the points from index first to the end, or until an operator, a fault or a shutdown stops it.
+func (r *pointRunner) run(ctx context.Context, first int) outcome {
+	e, en, plan := r.e, r.en, r.plan
+	for i := first; i < plan.Len(); i++ {
 		e.mu.Lock()
 		cancel, pause, draining := en.cancelReq, en.pauseReq, e.draining
 		e.mu.Unlock()
@@ -246,8 +265,9 @@ type pointRunner struct {
 	en   *entry
 	plan *scan.Plan
 	cfg  *instrument.Config
-	app  *store.Appender
-	hv   bool
+	// commit makes taken points durable and publishes them.
+	commit *committer
+	hv     bool
 	// held positions of the axes the plan does not move: requested and read-back.
 	heldSet, heldActual map[string]float64
 }
@@ -265,7 +285,8 @@ func (r *pointRunner) hold(ctx context.Context) error {
 	return nil
 }
 
-// point takes point i: move, count, check the source stayed on, store, publish. It returns nil to go on.
+// point takes point i: move, count, check the source stayed on, then hand it to the committer, which stores
+// and publishes it. It returns nil to go on.
 func (r *pointRunner) point(ctx context.Context, i int) *outcome {
 	e := r.e
 	t0 := time.Now()
@@ -301,14 +322,10 @@ func (r *pointRunner) point(ctx context.Context, i int) *outcome {
 	}
 	inDriver := time.Since(td)
 	p := r.build(i, targets, actual, counts)
-	if err := r.app.Append(p); err != nil {
-		o := storageFailure(fmt.Sprintf("storing point %d failed (the %d points before it are intact)", i, i), err)
+	if err := r.commit.take(taken{p: p, overhead: time.Since(t0) - inDriver}); err != nil {
+		o := storageFailure("the data directory failed", err)
 		return &o
 	}
-	r.en.hub.publish(p)
-	rec := r.en.hub.record()
-	e.ctl.NoteRate(p.RateCps, p.CorrectedRateCps)
-	e.obs.PointStored(&rec, p, time.Since(t0)-inDriver)
 	return nil
 }
 
