@@ -28,9 +28,10 @@ type taken struct {
 // The runner hands it points in order and goes on measuring while earlier points are fsynced; when the disk is
 // the slower part, one fsync covers every point that arrived meanwhile. It owns the appender while it runs.
 type committer struct {
-	app    *store.Appender
-	hub    *hub
-	stored func(batch []taken) // called after each durable batch is published
+	app     *store.Appender
+	hub     *hub
+	durable func(points []*goniodv1.Point, at time.Time) // called when a batch is on disk, before it is published
+	stored  func(batch []taken)                          // called after each durable batch is published
 
 	in   chan taken
 	done chan struct{}
@@ -40,8 +41,8 @@ type committer struct {
 	failed int   // index of the first point that could not be stored
 }
 
-func startCommitter(app *store.Appender, h *hub, stored func([]taken)) *committer {
-	c := &committer{app: app, hub: h, stored: stored, in: make(chan taken, commitQueue), done: make(chan struct{})}
+func startCommitter(app *store.Appender, h *hub, durable func([]*goniodv1.Point, time.Time), stored func([]taken)) *committer {
+	c := &committer{app: app, hub: h, durable: durable, stored: stored, in: make(chan taken, commitQueue), done: make(chan struct{})}
 	go c.loop()
 	return c
 }
@@ -106,6 +107,9 @@ func (c *committer) loop() {
 			c.err, c.failed = err, int(points[0].Index)
 			c.mu.Unlock()
 			continue
+		}
+		if c.durable != nil {
+			c.durable(points, time.Now())
 		}
 		c.hub.publish(points...)
 		c.stored(batch)

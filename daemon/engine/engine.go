@@ -24,6 +24,13 @@ type Observer interface {
 	StateChanged(rec *scan.Record)
 }
 
+// DurableObserver is an Observer that also wants the moment each batch of points became durable, just before
+// the batch is published to watchers (optional; found by type assertion). Benchmarks use it to measure fan-out
+// latency from the fsync to each watcher.
+type DurableObserver interface {
+	PointsDurable(scanID string, points []*goniodv1.Point, at time.Time)
+}
+
 type nopObserver struct{}
 
 func (nopObserver) PointStored(*scan.Record, *goniodv1.Point, time.Duration) {}

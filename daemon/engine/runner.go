@@ -116,7 +116,12 @@ func (e *Engine) execute(ctx context.Context, en *entry, log *slog.Logger) outco
 	if err := r.hold(ctx); err != nil {
 		return e.fault(ctx, err)
 	}
-	r.commit = startCommitter(app, en.hub, func(batch []taken) {
+	var durable func([]*goniodv1.Point, time.Time)
+	if d, ok := e.obs.(DurableObserver); ok {
+		id := en.hub.record().ID
+		durable = func(points []*goniodv1.Point, at time.Time) { d.PointsDurable(id, points, at) }
+	}
+	r.commit = startCommitter(app, en.hub, durable, func(batch []taken) {
 		rec := en.hub.record()
 		last := batch[len(batch)-1].p
 		e.ctl.NoteRate(last.RateCps, last.CorrectedRateCps)
