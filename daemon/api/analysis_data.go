@@ -163,6 +163,20 @@ func (d *dataset) scan(axis string) (*analysis.Scan, error) {
 	return analysis.NewScan(d.angles[axis], d.counts, d.dwell, d.dead)
 }
 
+// on picks the abscissa (the named axis, or def when name is empty) and prepares the analysis scan on it;
+// errors are gRPC status errors.
+func (d *dataset) on(name, def string) (string, *analysis.Scan, error) {
+	axis, err := d.axisOr(name, def)
+	if err != nil {
+		return "", nil, toStatus(err)
+	}
+	sc, err := d.scan(axis)
+	if err != nil {
+		return "", nil, analysisStatus(err)
+	}
+	return axis, sc, nil
+}
+
 // anodeOr resolves the anode: the request's, else the data's.
 func (d *dataset) anodeOr(es *validate.Errors, field, name string) xray.Anode {
 	if name == "" {

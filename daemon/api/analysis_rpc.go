@@ -22,13 +22,9 @@ func (s *AnalysisService) FindPeaks(ctx context.Context, req *goniodv1.FindPeaks
 	if err := es.Err(); err != nil {
 		return nil, toStatus(err)
 	}
-	axis, err := d.axisOr(req.GetAxis(), d.moving)
+	axis, sc, err := d.on(req.GetAxis(), d.moving)
 	if err != nil {
-		return nil, toStatus(err)
-	}
-	sc, err := d.scan(axis)
-	if err != nil {
-		return nil, analysisStatus(err)
+		return nil, err
 	}
 	ps, err := analysis.FindPeaks(sc, opt)
 	if err != nil {
@@ -76,13 +72,9 @@ func (s *AnalysisService) lines(d *dataset, anodeName, crystal string, dNM float
 	if err := es.Err(); err != nil {
 		return nil, toStatus(err)
 	}
-	axis, err := d.axisOr("", s.crystalAxis(d))
+	axis, sc, err := d.on("", s.crystalAxis(d))
 	if err != nil {
-		return nil, toStatus(err)
-	}
-	sc, err := d.scan(axis)
-	if err != nil {
-		return nil, analysisStatus(err)
+		return nil, err
 	}
 	ps, err := analysis.FindPeaks(sc, po)
 	if err != nil {
@@ -165,13 +157,9 @@ func (s *AnalysisService) MeasureWidth(ctx context.Context, req *goniodv1.Measur
 	if err := es.Err(); err != nil {
 		return nil, toStatus(err)
 	}
-	axis, err := d.axisOr(req.GetAxis(), d.moving)
+	axis, sc, err := d.on(req.GetAxis(), d.moving)
 	if err != nil {
-		return nil, toStatus(err)
-	}
-	sc, err := d.scan(axis)
-	if err != nil {
-		return nil, analysisStatus(err)
+		return nil, err
 	}
 	w, err := analysis.MeasureWidth(sc, opt)
 	if err != nil {
@@ -209,13 +197,9 @@ func (s *AnalysisService) FitLimit(ctx context.Context, req *goniodv1.FitLimitRe
 		if err := es.Err(); err != nil {
 			return nil, toStatus(err)
 		}
-		axis, err := d.axisOr("", s.crystalAxis(d))
+		_, sc, err := d.on("", s.crystalAxis(d))
 		if err != nil {
-			return nil, toStatus(err)
-		}
-		sc, err := d.scan(axis)
-		if err != nil {
-			return nil, analysisStatus(err)
+			return nil, err
 		}
 		l, err := analysis.DuaneHunt(sc, d.dNM, d.kv)
 		if err != nil {

@@ -17,18 +17,7 @@ func readPoints(t *testing.T, d *servertest.Daemon, id string) []client.Point {
 
 func apiPoints(t *testing.T, c *client.Client, id string) []client.Point {
 	t.Helper()
-	st, err := c.Points(context.Background(), id, 0, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var out []client.Point
-	for p := range st.C {
-		out = append(out, p)
-	}
-	if err := st.Err(); err != nil {
-		t.Fatal(err)
-	}
-	return out
+	return servertest.ReadPoints(t, c, id)
 }
 
 // waitScanState polls a scan until it is in state.

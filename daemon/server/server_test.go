@@ -56,7 +56,7 @@ func TestCoupledScanEndToEnd(t *testing.T) {
 			t.Errorf("CSV header %v lacks %s", header, col)
 		}
 	}
-	pts := readAll(t, d, s.ID)
+	pts := d.Points(t, s.ID)
 	best := 0
 	for i, p := range pts {
 		theta, _ := p.Angle("theta")
@@ -90,22 +90,6 @@ func TestCoupledScanEndToEnd(t *testing.T) {
 		t.Errorf("largest peak at θ = %.3f°, Cu Kα1 on LiF(200) is at %.3f°", top, ref)
 	}
 	t.Logf("largest peak θ = %.3f° (%d counts); Cu Kα1/LiF(200) reference %.3f°", top, pts[best].Counts, ref)
-}
-
-func readAll(t *testing.T, d *servertest.Daemon, id string) []client.Point {
-	t.Helper()
-	st, err := d.Client.Points(context.Background(), id, 0, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var out []client.Point
-	for p := range st.C {
-		out = append(out, p)
-	}
-	if err := st.Err(); err != nil {
-		t.Fatal(err)
-	}
-	return out
 }
 
 func contains(xs []string, x string) bool {

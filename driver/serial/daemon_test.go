@@ -51,20 +51,7 @@ func submit(t *testing.T, d *servertest.Daemon, r client.ScanRequest) client.Sca
 // points reads every stored point of a scan.
 func points(t *testing.T, d *servertest.Daemon, id string) []client.Point {
 	t.Helper()
-	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
-	defer cancel()
-	st, err := d.Client.Points(ctx, id, 0, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var out []client.Point
-	for p := range st.C {
-		out = append(out, p)
-	}
-	if err := st.Err(); err != nil {
-		t.Fatal(err)
-	}
-	return out
+	return d.Points(t, id)
 }
 
 // checkExactlyOnce: every planned point is stored once, in order, at its planned angle (start + i·step).

@@ -188,3 +188,29 @@ func NeedProgram(t testing.TB, name, debianPackage string) string {
 	}
 	return path
 }
+
+// Points reads every stored point of a scan from this daemon.
+func (d *Daemon) Points(t testing.TB, id string) []client.Point {
+	t.Helper()
+	return ReadPoints(t, d.Client, id)
+}
+
+// ReadPoints reads every stored point of a scan through a client (of any daemon, in-process or not),
+// failing the test on an error or after a minute.
+func ReadPoints(t testing.TB, c *client.Client, id string) []client.Point {
+	t.Helper()
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	st, err := c.Points(ctx, id, 0, 0)
+	if err != nil {
+		t.Fatalf("points of %s: %v", id, err)
+	}
+	var out []client.Point
+	for p := range st.C {
+		out = append(out, p)
+	}
+	if err := st.Err(); err != nil {
+		t.Fatalf("points of %s: %v", id, err)
+	}
+	return out
+}
