@@ -144,15 +144,27 @@ func (c *Controller) Run(ctx context.Context) {
 		feed = t.C
 	}
 	c.refresh(ctx)
+	// last is when the instrument last served a request. While requests keep coming (a scan runs) they keep most
+	// of the cache fresh and the instrument's watchdog fed, so the feed stays off the line and the full poll
+	// runs only every tenth period.
+	last, polled := time.Time{}, time.Now()
+	busy := func(period time.Duration) bool { return time.Since(last) < period }
 	for {
 		select {
 		case <-ctx.Done():
 			return
 		case r := <-c.reqs:
 			r.done <- r.fn(r.ctx)
+			last = time.Now()
 		case <-poll.C:
-			c.refresh(ctx)
+			if !busy(c.poll) || time.Since(polled) >= 10*c.poll {
+				c.refresh(ctx)
+				polled = time.Now()
+			}
 		case <-feed:
+			if busy(c.watchdog.WatchdogPeriod()) {
+				continue
+			}
 			fctx, cancel := context.WithTimeout(ctx, 5*time.Second)
 			if err := c.watchdog.Feed(fctx); err != nil {
 				c.log.Warn("watchdog feed failed", "err", err)
