@@ -85,6 +85,7 @@ func Run(ctx context.Context, o Options) error {
 		if creds, err = serverTLS(cfg.Security); err != nil {
 			return err
 		}
+		log.Info("TLS on", "client_certificates_required", cfg.Security.TLSClientCA != "")
 	}
 	st, err := store.Open(cfg.Data, log)
 	if err != nil {
@@ -93,18 +94,11 @@ func Run(ctx context.Context, o Options) error {
 	defer st.Close()
 	log.Info("data directory", "path", cfg.Data)
 
-	drvName := cfg.Driver
-	if drvName == "" {
-		drvName = "sim"
+	drvName, drv, err := openDriver(ctx, o)
+	if err != nil {
+		return err
 	}
-	drv := o.Instrument
-	if drv == nil {
-		openCtx, cancelOpen := context.WithTimeout(ctx, 30*time.Second)
-		drv, err = driver.Open(openCtx, drvName, driver.Params{Decode: cfg.DriverDecoder(drvName), Logger: log.With("driver", drvName)})
-		cancelOpen()
-		if err != nil {
-			return err
-		}
+	if o.Instrument == nil {
 		defer drv.Close()
 	}
 
@@ -123,70 +117,35 @@ func Run(ctx context.Context, o Options) error {
 	go func() { defer wg.Done(); ctl.Run(ctlCtx) }()
 	defer func() { stopCtl(); wg.Wait() }()
 
-	// Safety: the daemon never leaves high voltage on from before its start.
-	offCtx, cancelOff := context.WithTimeout(ctx, 10*time.Second)
-	if err := ctl.SetHighVoltage(offCtx, false); err != nil {
-		log.Warn("could not switch high voltage off at start", "err", err)
-	} else {
-		log.Info("high voltage off at start (goniod never switches it on by itself)")
-	}
-	cancelOff()
+	switchOffAtStart(ctx, ctl, log)
 	if id, err := ctl.Identify(ctx); err == nil {
 		log.Info("instrument", "identity", id, "driver", drvName, "config_hash", icfg.Hash())
 	}
 
-	reg := prometheus.NewRegistry()
-	reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
-	var eng *engine.Engine
-	m := metrics.New(reg, ctl, scanLister(func(after string, limit int, states []scan.State) ([]scan.Record, string) {
-		return eng.List(after, limit, states)
-	}))
-	eng, err = engine.New(engine.Options{Store: st, Controller: ctl, Log: log.With("part", "engine"), Observer: m, Version: o.Version})
+	sv, err := newServices(o, st, ctl, icfg, tokens, creds)
 	if err != nil {
 		return err
 	}
-	mon := safety.New(safety.Options{Instrument: ctl, Scans: eng, Recorder: m, Log: log.With("part", "safety"),
-		IdleHighVoltageOff: cfg.Safety.IdleHighVoltageOff})
-	m.KnowSafetyEvents(safety.Events...)
-	guard := auth.NewGuard(auth.Options{Tokens: tokens, Log: log.With("part", "audit"), Limits: callerLimits(cfg.Limits), OnControl: mon.Touch})
-	gm := metrics.NewGRPC(reg)
-
-	if creds != nil {
-		log.Info("TLS on", "client_certificates_required", cfg.Security.TLSClientCA != "")
+	lis, mlis, err := listen(o)
+	if err != nil {
+		return err
 	}
-	gs := grpc.NewServer(serverOptions(creds, gm, guard)...)
-	goniodv1.RegisterScansServer(gs, &api.ScanService{Engine: eng})
-	goniodv1.RegisterInstrumentServer(gs, &api.InstrumentService{Engine: eng, Controller: ctl, Version: o.Version})
-	goniodv1.RegisterAnalysisServer(gs, &api.AnalysisService{Scans: eng, Results: st, CrystalAxis: icfg.CrystalAxis()})
-	hs := health.NewServer()
-	healthpb.RegisterHealthServer(gs, hs)
-	reflection.Register(gs)
+	return sv.serve(ctx, o, ctl, lis, mlis, drvName)
+}
 
-	lis := o.Listener
-	if lis == nil {
-		if lis, err = net.Listen("tcp", cfg.Listen); err != nil {
-			return fmt.Errorf("listen %s: %w", cfg.Listen, err)
-		}
-	}
-	mlis := o.MetricsListener
-	if mlis == nil {
-		if mlis, err = net.Listen("tcp", cfg.MetricsListen); err != nil {
-			lis.Close()
-			return fmt.Errorf("metrics listen %s: %w", cfg.MetricsListen, err)
-		}
-	}
-	mux := http.NewServeMux()
-	mux.Handle("/metrics", promhttp.HandlerFor(reg, promhttp.HandlerOpts{Registry: reg, MaxRequestsInFlight: 8, Timeout: 10 * time.Second}))
-	hsrv := &http.Server{Handler: mux, ReadHeaderTimeout: 10 * time.Second, ReadTimeout: 10 * time.Second,
-		WriteTimeout: 30 * time.Second, MaxHeaderBytes: 1 << 16}
-
+// serve runs the engine, the safety monitor and both servers until ctx ends or a server fails, then shuts down
+// in order: stop new work, let the running scan finish its point and mark it interrupted, switch high voltage
+// off, close the servers.
+func (sv *services) serve(ctx context.Context, o Options, ctl *instrument.Controller, lis, mlis net.Listener, drvName string) error {
+	cfg, log := o.Config, o.Log
+	hsrv := metricsServer(sv.reg)
 	engCtx, stopEng := context.WithCancel(context.Background())
 	errs := make(chan error, 2)
 	var engDone sync.WaitGroup
 	engDone.Add(2)
-	go func() { defer engDone.Done(); eng.Run(engCtx) }()
-	go func() { defer engDone.Done(); mon.Run(engCtx) }()
-	go func() { errs <- gs.Serve(lis) }()
+	go func() { defer engDone.Done(); sv.eng.Run(engCtx) }()
+	go func() { defer engDone.Done(); sv.mon.Run(engCtx) }()
+	go func() { errs <- sv.gs.Serve(lis) }()
 	go func() {
 		if err := hsrv.Serve(mlis); !errors.Is(err, http.ErrServerClosed) {
 			errs <- err
@@ -204,20 +163,121 @@ func Run(ctx context.Context, o Options) error {
 	case runErr = <-errs:
 		log.Error("server failed", "err", runErr)
 	}
-	hs.Shutdown()
-	drain(eng, cfg.Safety.ShutdownTimeout, log)
+	sv.hs.Shutdown()
+	drain(sv.eng, cfg.Safety.ShutdownTimeout, log)
 	stopEng()
 	engDone.Wait()
 	if !cfg.Safety.KeepHighVoltageOnShutdown {
-		offCtx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
-		if err := ctl.SetHighVoltage(offCtx, false); err != nil {
-			log.Warn("high voltage off at shutdown failed; halting", "err", err)
-			_ = ctl.Halt()
-		} else {
-			log.Info("high voltage off at shutdown")
-		}
-		cancel()
+		switchOffAtShutdown(ctl, log)
 	}
+	stopServers(sv.gs, hsrv)
+	return runErr
+}
+
+// services are the daemon's parts above the instrument controller.
+type services struct {
+	reg *prometheus.Registry
+	eng *engine.Engine
+	mon *safety.Monitor
+	gs  *grpc.Server
+	hs  *health.Server
+}
+
+// newServices builds the metrics, the scan engine, the safety monitor and the gRPC server with its guard.
+func newServices(o Options, st *store.Store, ctl *instrument.Controller, icfg instrument.Config, tokens *auth.Tokens,
+	creds credentials.TransportCredentials) (*services, error) {
+	cfg, log := o.Config, o.Log
+	sv := &services{reg: prometheus.NewRegistry()}
+	sv.reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
+	m := metrics.New(sv.reg, ctl, scanLister(func(after string, limit int, states []scan.State) ([]scan.Record, string) {
+		return sv.eng.List(after, limit, states)
+	}))
+	var err error
+	sv.eng, err = engine.New(engine.Options{Store: st, Controller: ctl, Log: log.With("part", "engine"), Observer: m, Version: o.Version})
+	if err != nil {
+		return nil, err
+	}
+	sv.mon = safety.New(safety.Options{Instrument: ctl, Scans: sv.eng, Recorder: m, Log: log.With("part", "safety"),
+		IdleHighVoltageOff: cfg.Safety.IdleHighVoltageOff})
+	m.KnowSafetyEvents(safety.Events...)
+	guard := auth.NewGuard(auth.Options{Tokens: tokens, Log: log.With("part", "audit"), Limits: callerLimits(cfg.Limits), OnControl: sv.mon.Touch})
+	sv.gs = grpc.NewServer(serverOptions(creds, metrics.NewGRPC(sv.reg), guard)...)
+	goniodv1.RegisterScansServer(sv.gs, &api.ScanService{Engine: sv.eng})
+	goniodv1.RegisterInstrumentServer(sv.gs, &api.InstrumentService{Engine: sv.eng, Controller: ctl, Version: o.Version})
+	goniodv1.RegisterAnalysisServer(sv.gs, &api.AnalysisService{Scans: sv.eng, Results: st, CrystalAxis: icfg.CrystalAxis()})
+	sv.hs = health.NewServer()
+	healthpb.RegisterHealthServer(sv.gs, sv.hs)
+	reflection.Register(sv.gs)
+	return sv, nil
+}
+
+// openDriver returns the instrument the caller holds, or opens the configured driver ("sim" by default).
+func openDriver(ctx context.Context, o Options) (string, driver.Instrument, error) {
+	name := o.Config.Driver
+	if name == "" {
+		name = "sim"
+	}
+	if o.Instrument != nil {
+		return name, o.Instrument, nil
+	}
+	ctx, cancel := context.WithTimeout(ctx, 30*time.Second)
+	defer cancel()
+	drv, err := driver.Open(ctx, name, driver.Params{Decode: o.Config.DriverDecoder(name), Logger: o.Log.With("driver", name)})
+	return name, drv, err
+}
+
+// switchOffAtStart leaves no high voltage on from before the daemon's start: goniod never switches it on by
+// itself.
+func switchOffAtStart(ctx context.Context, ctl *instrument.Controller, log *slog.Logger) {
+	ctx, cancel := context.WithTimeout(ctx, 10*time.Second)
+	defer cancel()
+	if err := ctl.SetHighVoltage(ctx, false); err != nil {
+		log.Warn("could not switch high voltage off at start", "err", err)
+		return
+	}
+	log.Info("high voltage off at start (goniod never switches it on by itself)")
+}
+
+// switchOffAtShutdown switches high voltage off, halting the instrument when it does not answer.
+func switchOffAtShutdown(ctl *instrument.Controller, log *slog.Logger) {
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+	defer cancel()
+	if err := ctl.SetHighVoltage(ctx, false); err != nil {
+		log.Warn("high voltage off at shutdown failed; halting", "err", err)
+		_ = ctl.Halt()
+		return
+	}
+	log.Info("high voltage off at shutdown")
+}
+
+// listen returns the gRPC and metrics listeners: the caller's, or new ones on the configured addresses.
+func listen(o Options) (lis, mlis net.Listener, err error) {
+	cfg := o.Config
+	lis, mlis = o.Listener, o.MetricsListener
+	if lis == nil {
+		if lis, err = net.Listen("tcp", cfg.Listen); err != nil {
+			return nil, nil, fmt.Errorf("listen %s: %w", cfg.Listen, err)
+		}
+	}
+	if mlis == nil {
+		if mlis, err = net.Listen("tcp", cfg.MetricsListen); err != nil {
+			lis.Close()
+			return nil, nil, fmt.Errorf("metrics listen %s: %w", cfg.MetricsListen, err)
+		}
+	}
+	return lis, mlis, nil
+}
+
+// metricsServer serves /metrics from reg, bounded in time, size and concurrent scrapes.
+func metricsServer(reg *prometheus.Registry) *http.Server {
+	mux := http.NewServeMux()
+	mux.Handle("/metrics", promhttp.HandlerFor(reg, promhttp.HandlerOpts{Registry: reg, MaxRequestsInFlight: 8, Timeout: 10 * time.Second}))
+	return &http.Server{Handler: mux, ReadHeaderTimeout: 10 * time.Second, ReadTimeout: 10 * time.Second,
+		WriteTimeout: 30 * time.Second, MaxHeaderBytes: 1 << 16}
+}
+
+// stopServers lets open calls finish for a few seconds, then cuts them.
+func stopServers(gs *grpc.Server, hsrv *http.Server) {
 	stopped := make(chan struct{})
 	go func() { gs.GracefulStop(); close(stopped) }()
 	select {
@@ -225,10 +285,9 @@ func Run(ctx context.Context, o Options) error {
 	case <-time.After(3 * time.Second):
 		gs.Stop()
 	}
-	shutCtx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
-	_ = hsrv.Shutdown(shutCtx)
-	cancel()
-	return runErr
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+	defer cancel()
+	_ = hsrv.Shutdown(ctx)
 }
 
 // serverOptions bound what the network can make the daemon hold, and put the gRPC metrics and the guard in
