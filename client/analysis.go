@@ -285,7 +285,7 @@ func valueOf(v *goniodv1.Value) Value { return Value{Value: v.GetValue(), Err: v
 
 func peakFromProto(p *goniodv1.Peak) Peak {
 	return Peak{CentreDeg: valueOf(p.GetCentreDeg()), FWHMDeg: valueOf(p.GetFwhmDeg()), Area: valueOf(p.GetArea()),
-		Height: p.GetHeightCounts(), Background: p.GetBackgroundCounts(), Significance: p.GetSignificance(),
+		Height: p.GetHeightCps(), Background: p.GetBackgroundCps(), Significance: p.GetSignificance(),
 		ReducedChi2: p.GetReducedChi2(), WavelengthNM: p.GetWavelengthNm(), EnergyKeV: p.GetEnergyKev(), Group: int(p.GetGroup())}
 }
 

@@ -230,7 +230,7 @@ func (d *dataset) peaksProto(ps []analysis.Peak, axis string) []*goniodv1.Peak {
 // energy of its centre.
 func (d *dataset) peakProto(p analysis.Peak, axis string) *goniodv1.Peak {
 	out := &goniodv1.Peak{CentreDeg: valueProto(p.Centre), FwhmDeg: valueProto(p.FWHM), Area: valueProto(p.Area),
-		HeightCounts: p.Height, BackgroundCounts: p.Background, Significance: p.Significance,
+		HeightCps: p.Height, BackgroundCps: p.Background, Significance: p.Significance,
 		ReducedChi2: p.ReducedChi2, Group: uint32(p.Group)}
 	if d.dNM > 0 && axis == d.moving && p.Centre.Value > 0 && p.Centre.Value < 90 {
 		wl := xray.WavelengthNM(p.Centre.Value, d.dNM, 1)

@@ -637,10 +637,11 @@ type Peak struct {
 	state     protoimpl.MessageState `protogen:"open.v1"`
 	CentreDeg *Value                 `protobuf:"bytes,1,opt,name=centre_deg,json=centreDeg,proto3" json:"centre_deg,omitempty"`
 	FwhmDeg   *Value                 `protobuf:"bytes,2,opt,name=fwhm_deg,json=fwhmDeg,proto3" json:"fwhm_deg,omitempty"`
-	// Area in counts·degree above the background.
-	Area             *Value  `protobuf:"bytes,3,opt,name=area,proto3" json:"area,omitempty"`
-	HeightCounts     float64 `protobuf:"fixed64,4,opt,name=height_counts,json=heightCounts,proto3" json:"height_counts,omitempty"`
-	BackgroundCounts float64 `protobuf:"fixed64,5,opt,name=background_counts,json=backgroundCounts,proto3" json:"background_counts,omitempty"`
+	// Area above the background, in dead-time-corrected counts per second × degree.
+	Area *Value `protobuf:"bytes,3,opt,name=area,proto3" json:"area,omitempty"`
+	// Height above the background and the background under the centre, dead-time-corrected counts per second.
+	HeightCps     float64 `protobuf:"fixed64,4,opt,name=height_cps,json=heightCps,proto3" json:"height_cps,omitempty"`
+	BackgroundCps float64 `protobuf:"fixed64,5,opt,name=background_cps,json=backgroundCps,proto3" json:"background_cps,omitempty"`
 	// Peak height over background in units of the Poisson standard deviation.
 	Significance float64 `protobuf:"fixed64,6,opt,name=significance,proto3" json:"significance,omitempty"`
 	ReducedChi2  float64 `protobuf:"fixed64,7,opt,name=reduced_chi2,json=reducedChi2,proto3" json:"reduced_chi2,omitempty"`
@@ -704,16 +705,16 @@ func (x *Peak) GetArea() *Value {
 	return nil
 }
 
-func (x *Peak) GetHeightCounts() float64 {
+func (x *Peak) GetHeightCps() float64 {
 	if x != nil {
-		return x.HeightCounts
+		return x.HeightCps
 	}
 	return 0
 }
 
-func (x *Peak) GetBackgroundCounts() float64 {
+func (x *Peak) GetBackgroundCps() float64 {
 	if x != nil {
-		return x.BackgroundCounts
+		return x.BackgroundCps
 	}
 	return 0
 }
@@ -1876,14 +1877,15 @@ const file_goniod_v1_analysis_proto_rawDesc = "" +
 	"\x04save\x18\x05 \x01(\bR\x04save\"/\n" +
 	"\x05Value\x12\x14\n" +
 	"\x05value\x18\x01 \x01(\x01R\x05value\x12\x10\n" +
-	"\x03err\x18\x02 \x01(\x01R\x03err\"\xa8\x03\n" +
+	"\x03err\x18\x02 \x01(\x01R\x03err\"\x9c\x03\n" +
 	"\x04Peak\x12/\n" +
 	"\n" +
 	"centre_deg\x18\x01 \x01(\v2\x10.goniod.v1.ValueR\tcentreDeg\x12+\n" +
 	"\bfwhm_deg\x18\x02 \x01(\v2\x10.goniod.v1.ValueR\afwhmDeg\x12$\n" +
-	"\x04area\x18\x03 \x01(\v2\x10.goniod.v1.ValueR\x04area\x12#\n" +
-	"\rheight_counts\x18\x04 \x01(\x01R\fheightCounts\x12+\n" +
-	"\x11background_counts\x18\x05 \x01(\x01R\x10backgroundCounts\x12\"\n" +
+	"\x04area\x18\x03 \x01(\v2\x10.goniod.v1.ValueR\x04area\x12\x1d\n" +
+	"\n" +
+	"height_cps\x18\x04 \x01(\x01R\theightCps\x12%\n" +
+	"\x0ebackground_cps\x18\x05 \x01(\x01R\rbackgroundCps\x12\"\n" +
 	"\fsignificance\x18\x06 \x01(\x01R\fsignificance\x12!\n" +
 	"\freduced_chi2\x18\a \x01(\x01R\vreducedChi2\x12(\n" +
 	"\rwavelength_nm\x18\b \x01(\x01H\x00R\fwavelengthNm\x88\x01\x01\x12\"\n" +
