@@ -72,6 +72,9 @@ func writeScan(w io.Writer, format string, s client.Scan) error {
 		row("ended", "%s", localTime(s.Ended))
 	}
 	row("instrument", "%s (driver %s, config %s)", s.Info.Instrument, s.Info.Driver, s.Info.ConfigHash)
+	if s.Info.Identity != "" {
+		row("identity", "%s", s.Info.Identity)
+	}
 	if s.Info.Anode != "" || s.Info.Crystal != "" {
 		row("anode/crystal", "%s / %s (d = %g nm)", s.Info.Anode, s.Info.Crystal, s.Info.CrystalDNM)
 	}

@@ -33,6 +33,7 @@ type scanView struct {
 	Started     *time.Time     `json:"started,omitempty"`
 	Ended       *time.Time     `json:"ended,omitempty"`
 	Instrument  string         `json:"instrument,omitempty"`
+	Identity    string         `json:"identity,omitempty"`
 	Driver      string         `json:"driver,omitempty"`
 	ConfigHash  string         `json:"config_hash,omitempty"`
 	Version     string         `json:"daemon_version,omitempty"`
@@ -52,7 +53,7 @@ func viewOf(s client.Scan) scanView {
 	v := scanView{ID: s.ID, SeriesID: s.SeriesID, State: s.State, Reason: s.Reason, PointsDone: s.PointsDone,
 		PointsTotal: s.PointsTotal, Kind: r.Kind, Axis: r.Axis, DwellS: r.Dwell.Seconds(), Precision: r.RelativeError,
 		Source: r.Source, Label: r.Label, Operator: r.Operator, Note: r.Note, Created: optTime(s.Created),
-		Started: optTime(s.Started), Ended: optTime(s.Ended), Instrument: s.Info.Instrument, Driver: s.Info.Driver,
+		Started: optTime(s.Started), Ended: optTime(s.Ended), Instrument: s.Info.Instrument, Identity: s.Info.Identity, Driver: s.Info.Driver,
 		ConfigHash: s.Info.ConfigHash, Version: s.Info.DaemonVersion, Anode: s.Info.Anode, Crystal: s.Info.Crystal}
 	if r.Kind == client.Coupled || r.Kind == client.Axis {
 		v.FromDeg, v.ToDeg, v.StepDeg = &r.From, &r.To, &r.Step
