@@ -4,6 +4,7 @@ package goniodv1
 // the daemon's store and the client so that a stored points file and a fetched one have the same columns.
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
 	"math"
@@ -212,78 +213,62 @@ func (t *PointTable) AppendJSON(dst []byte, p *Point) []byte {
 // ErrBadLine marks a points line that cannot be read: torn by a crash or damaged.
 var ErrBadLine = errors.New("bad points line")
 
-// DecodeCSV parses one CSV line (without or with its newline) into a point.
+// DecodeCSV parses one CSV line (without or with its newline) into a point. It reads the fields in place and
+// puts the point with its time, axis readings and optional values in one allocation: reading a stored scan
+// (a replay, a fetch, an analysis) decodes every line.
 func (t *PointTable) DecodeCSV(line []byte) (*Point, error) {
-	s := strings.TrimRight(string(line), "\r\n")
-	f := strings.Split(s, ",")
-	if len(f) != len(t.cols) {
-		return nil, fmt.Errorf("%w: %d fields, want %d", ErrBadLine, len(f), len(t.cols))
+	line = bytes.TrimRight(line, "\r\n")
+	if n := bytes.Count(line, []byte{','}) + 1; n != len(t.cols) {
+		return nil, fmt.Errorf("%w: %d fields, want %d", ErrBadLine, n, len(t.cols))
 	}
-	num := func(i int) (float64, error) {
-		v, err := strconv.ParseFloat(f[i], 64)
-		if err != nil {
-			return 0, fmt.Errorf("%w: column %s: %v", ErrBadLine, t.cols[i], err)
-		}
-		return v, nil
-	}
-	count := func(i int) (uint64, error) {
-		v, err := strconv.ParseUint(f[i], 10, 64)
-		if err != nil {
-			return 0, fmt.Errorf("%w: column %s: %v", ErrBadLine, t.cols[i], err)
-		}
-		return v, nil
-	}
-	p := &Point{}
-	idx, err := strconv.ParseUint(f[0], 10, 32)
+	f := fields{line: line, cols: t.cols}
+	b := newPointBlock(len(t.Axes))
+	p := &b.p
+	idx, err := strconv.ParseUint(string(f.next()), 10, 32)
 	if err != nil {
 		return nil, fmt.Errorf("%w: column index: %v", ErrBadLine, err)
 	}
 	p.Index = uint32(idx)
-	ts, err := time.Parse(time.RFC3339Nano, f[1])
+	ts, err := time.Parse(time.RFC3339Nano, string(f.next()))
 	if err != nil {
 		return nil, fmt.Errorf("%w: column time: %v", ErrBadLine, err)
 	}
-	p.Time = timestamppb.New(ts)
-	k := 2
-	n := len(t.Axes)
-	p.Axes = make([]*AxisReading, n)
+	b.time.Seconds, b.time.Nanos = ts.Unix(), int32(ts.Nanosecond())
+	p.Time = &b.time
 	for i, a := range t.Axes {
-		act, err := num(k + i)
-		if err != nil {
+		p.Axes[i].Name = a
+		if p.Axes[i].ActualDeg, err = f.float(); err != nil {
 			return nil, err
 		}
-		set, err := num(k + n + i)
-		if err != nil {
-			return nil, err
-		}
-		p.Axes[i] = &AxisReading{Name: a, ActualDeg: act, SetDeg: set}
 	}
-	k += 2 * n
-	dst := []*float64{&p.DwellS, nil, &p.RateCps, &p.RateErrCps, &p.CorrectedRateCps, &p.CorrectedRateErrCps, &p.TubeKv, &p.TubeMa}
-	for i, d := range dst {
-		if d == nil {
-			if p.Counts, err = count(k + i); err != nil {
-				return nil, err
-			}
+	for i := range t.Axes {
+		if p.Axes[i].SetDeg, err = f.float(); err != nil {
+			return nil, err
+		}
+	}
+	if p.DwellS, err = f.float(); err != nil {
+		return nil, err
+	}
+	if p.Counts, err = f.count(); err != nil {
+		return nil, err
+	}
+	for _, d := range []*float64{&p.RateCps, &p.RateErrCps, &p.CorrectedRateCps, &p.CorrectedRateErrCps, &p.TubeKv, &p.TubeMa} {
+		if *d, err = f.float(); err != nil {
+			return nil, err
+		}
+	}
+	for i, opt := range []**float64{&p.WavelengthNm, &p.EnergyKev} {
+		if f.peek() == 0 {
+			f.next()
 			continue
 		}
-		if *d, err = num(k + i); err != nil {
+		if b.optional[i], err = f.float(); err != nil {
 			return nil, err
 		}
+		*opt = &b.optional[i]
 	}
-	k += len(dst)
-	for _, opt := range []**float64{&p.WavelengthNm, &p.EnergyKev} {
-		if f[k] != "" {
-			v, err := num(k)
-			if err != nil {
-				return nil, err
-			}
-			*opt = &v
-		}
-		k++
-	}
-	for i, c := range t.Channels {
-		v, err := count(k + i)
+	for _, c := range t.Channels {
+		v, err := f.count()
 		if err != nil {
 			return nil, err
 		}
@@ -291,3 +276,112 @@ func (t *PointTable) DecodeCSV(line []byte) (*Point, error) {
 	}
 	return p, nil
 }
+
+// pointBlock holds a decoded point and the messages it points to, allocated together. The point keeps the
+// whole block alive, as it would keep its parts.
+type pointBlock struct {
+	p        Point
+	time     timestamppb.Timestamp
+	optional [2]float64 // wavelength, energy
+	axes     [2]*AxisReading
+	readings [2]AxisReading // the common two axes; more are allocated apart
+}
+
+func newPointBlock(axes int) *pointBlock {
+	b := &pointBlock{}
+	if axes <= len(b.readings) {
+		b.p.Axes = b.axes[:axes]
+		for i := range axes {
+			b.p.Axes[i] = &b.readings[i]
+		}
+		return b
+	}
+	b.p.Axes = make([]*AxisReading, axes)
+	for i := range b.p.Axes {
+		b.p.Axes[i] = &AxisReading{}
+	}
+	return b
+}
+
+// fields reads the comma-separated fields of a line in order; the caller has checked their number.
+type fields struct {
+	line []byte
+	cols []string
+	col  int // index of the next field
+}
+
+// next returns the next field.
+func (f *fields) next() []byte {
+	field := f.line
+	if i := bytes.IndexByte(f.line, ','); i >= 0 {
+		field, f.line = f.line[:i], f.line[i+1:]
+	} else {
+		f.line = nil
+	}
+	f.col++
+	return field
+}
+
+// peek returns the length of the next field.
+func (f *fields) peek() int {
+	if i := bytes.IndexByte(f.line, ','); i >= 0 {
+		return i
+	}
+	return len(f.line)
+}
+
+func (f *fields) float() (float64, error) {
+	v, err := parseFloat(f.next())
+	if err != nil {
+		return 0, fmt.Errorf("%w: column %s: %v", ErrBadLine, f.cols[f.col-1], err)
+	}
+	return v, nil
+}
+
+func (f *fields) count() (uint64, error) {
+	v, err := strconv.ParseUint(string(f.next()), 10, 64)
+	if err != nil {
+		return 0, fmt.Errorf("%w: column %s: %v", ErrBadLine, f.cols[f.col-1], err)
+	}
+	return v, nil
+}
+
+// parseFloat is strconv.ParseFloat(string(b), 64), bit for bit, with a shortcut for the plain decimals that
+// fill a points file ("22.5", "-0.0045", "1414.213562373095"): when the digits make an integer m < 2^53 and
+// there are k ≤ 22 of them after the point, m and 10^k are exact doubles and one division rounds correctly
+// (Clinger, "How to read floating point numbers accurately", PLDI 1990). Anything else goes to strconv.
+func parseFloat(b []byte) (float64, error) {
+	neg := len(b) > 0 && b[0] == '-'
+	digits := b
+	if neg {
+		digits = b[1:]
+	}
+	var m uint64
+	frac, seen, point := 0, 0, false
+	for _, c := range digits {
+		switch {
+		case c >= '0' && c <= '9' && m < 1<<53/10:
+			m = m*10 + uint64(c-'0')
+			seen++
+			if point {
+				frac++
+			}
+		case c == '.' && !point:
+			point = true
+		default:
+			return strconv.ParseFloat(string(b), 64)
+		}
+	}
+	if seen == 0 || frac > 22 || (point && digits[len(digits)-1] == '.') || digits[0] == '.' {
+		return strconv.ParseFloat(string(b), 64)
+	}
+	v := float64(m) / pow10[frac]
+	if neg {
+		v = -v
+	}
+	return v, nil
+}
+
+// pow10 are the powers of ten that a double holds exactly.
+var pow10 = [...]float64{1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+	1e17, 1e18, 1e19, 1e20, 1e21, 1e22}
