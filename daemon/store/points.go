@@ -177,6 +177,14 @@ func (a *Appender) rollback(cause error) {
 // Close closes the file.
 func (a *Appender) Close() error { return a.f.Close() }
 
+// Reading ahead: a read of more than readBatch points decodes its lines on a goroutine of its own, at most
+// readAhead batches ahead of fn, so that decoding and the caller's work on the points (a gRPC send) run side
+// by side. The points in flight bound the memory of one read: about (readAhead+2)·readBatch points.
+const (
+	readBatch = 256
+	readAhead = 2
+)
+
 // ReadPoints calls fn for the points of a scan with from <= index < from+limit (limit 0: to the end), in
 // order, reading the file as a stream: memory does not grow with the scan. A late from seeks through the
 // store's offset index instead of reading the file from its start. A torn last line is skipped.
@@ -193,30 +201,106 @@ func (s *Store) ReadPoints(ctx context.Context, id string, from, limit int, fn f
 	if _, err := f.Seek(off, io.SeekStart); err != nil {
 		return fmt.Errorf("points of %s: %w", id, err)
 	}
-	r := bufio.NewReaderSize(f, 1<<16)
-	for i := at; limit == 0 || i < from+limit; i++ {
-		line, err := r.ReadSlice('\n')
-		if errors.Is(err, bufio.ErrBufferFull) {
-			return fmt.Errorf("points of %s: line %d too long", id, i+2)
-		}
-		if err != nil {
-			return nil // EOF or a torn last line: the end of the durable points
-		}
-		if i < from {
-			continue
-		}
-		if i%256 == 0 && ctx.Err() != nil {
-			return ctx.Err()
-		}
-		p, err := table.DecodeCSV(line)
-		if err != nil {
-			return fmt.Errorf("points of %s, point %d: %w", id, i, err)
+	rd := &lineReader{r: bufio.NewReaderSize(f, 1<<16), table: table, id: id, next: at, from: from, limit: limit}
+	if limit > 0 && limit <= readBatch {
+		return rd.each(ctx, fn)
+	}
+	return rd.ahead(ctx, fn)
+}
+
+// lineReader decodes the points of one read from an open points file.
+type lineReader struct {
+	r     *bufio.Reader
+	table *goniodv1.PointTable
+	id    string
+	next  int // index of the point on the next line
+	from  int
+	limit int
+}
+
+// each calls fn for every point of the read, on the caller's goroutine.
+func (rd *lineReader) each(ctx context.Context, fn func(*goniodv1.Point) error) error {
+	for {
+		p, err := rd.point(ctx)
+		if p == nil || err != nil {
+			return err
 		}
 		if err := fn(p); err != nil {
 			return err
 		}
 	}
-	return nil
+}
+
+// ahead decodes on a goroutine that ends before ahead returns, and calls fn on the caller's goroutine.
+func (rd *lineReader) ahead(ctx context.Context, fn func(*goniodv1.Point) error) error {
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	batches := make(chan []*goniodv1.Point, readAhead)
+	var readErr error
+	go func() {
+		defer close(batches)
+		for {
+			batch := make([]*goniodv1.Point, 0, readBatch)
+			for len(batch) < readBatch {
+				p, err := rd.point(ctx)
+				if err != nil {
+					readErr = err
+				}
+				if p == nil {
+					break
+				}
+				batch = append(batch, p)
+			}
+			if len(batch) > 0 {
+				select {
+				case batches <- batch:
+				case <-ctx.Done():
+					return
+				}
+			}
+			if len(batch) < readBatch {
+				return
+			}
+		}
+	}()
+	for batch := range batches {
+		for _, p := range batch {
+			if err := fn(p); err != nil {
+				cancel()
+				for range batches { // let the reader end
+				}
+				return err
+			}
+		}
+	}
+	return readErr // written before batches was closed
+}
+
+// point decodes the next point of the read; nil at the end of the read or of the durable points.
+func (rd *lineReader) point(ctx context.Context) (*goniodv1.Point, error) {
+	for rd.limit == 0 || rd.next < rd.from+rd.limit {
+		i := rd.next
+		line, err := rd.r.ReadSlice('\n')
+		if errors.Is(err, bufio.ErrBufferFull) {
+			return nil, fmt.Errorf("points of %s: line %d too long", rd.id, i+2)
+		}
+		if err != nil {
+			return nil, nil // EOF or a torn last line: the end of the durable points
+		}
+		rd.next++
+		if i < rd.from {
+			continue
+		}
+		if i%256 == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
+		p, err := rd.table.DecodeCSV(line)
+		if err != nil {
+			return nil, fmt.Errorf("points of %s, point %d: %w", rd.id, i, err)
+		}
+		return p, nil
+	}
+	return nil, nil
 }
 
 // ReadTable returns a scan's points layout.
