@@ -41,6 +41,7 @@ type Instrument struct {
 	busy     int       // host commands in progress: the host is not silent while one runs
 	offWhy   string    // why high voltage last went off without being asked
 	rng      *rand.Rand
+	lastRate rateMemo        // the model's last answer: repeated counts at one place (timed scans) reuse it
 	halt     context.Context // cancelled by Halt to abort moves and counts in progress
 	haltNow  context.CancelFunc
 }

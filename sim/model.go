@@ -103,6 +103,22 @@ func (m model) directBeam(twoTheta, kV, mA float64) float64 {
 	return directBeamCPS * mA * u * u * (phi((twoTheta+m.slit/2)/m.sd) - phi((twoTheta-m.slit/2)/m.sd))
 }
 
+// rateMemo remembers the model's rate at one geometry and tube output. The model is a pure function of them,
+// so a count at the same place and setting, as every point of a timed scan is, need not evaluate it again.
+type rateMemo struct {
+	theta, twoTheta, kV, mA, rate float64
+	ok                            bool
+}
+
+// rateLocked is model.rate through the memo; in.mu must be held.
+func (in *Instrument) rateLocked(theta, twoTheta, kV, mA float64) float64 {
+	m := &in.lastRate
+	if !m.ok || m.theta != theta || m.twoTheta != twoTheta || m.kV != kV || m.mA != mA {
+		*m = rateMemo{theta: theta, twoTheta: twoTheta, kV: kV, mA: mA, rate: in.model.rate(theta, twoTheta, kV, mA), ok: true}
+	}
+	return m.rate
+}
+
 // maxOrder is the highest diffraction order the model follows.
 const maxOrder = 6
 

@@ -111,7 +111,7 @@ func (in *Instrument) Count(ctx context.Context, gate time.Duration) (driver.Cou
 	tubeSegs := in.tube.segments(start, start.Add(gate))
 	segs := make([]rateSegment, len(tubeSegs))
 	for i, s := range tubeSegs {
-		segs[i] = rateSegment{seconds: s.seconds, rate: in.model.rate(theta, twoTheta, s.kv, s.ma)}
+		segs[i] = rateSegment{seconds: s.seconds, rate: in.rateLocked(theta, twoTheta, s.kv, s.ma)}
 	}
 	n := in.counter.count(in.rng, segs)
 	return driver.Counts{Channels: []uint64{n}, Gate: gate}, nil
