@@ -13,6 +13,7 @@ import (
 	"goniod/daemon/instrument"
 	"goniod/daemon/scan"
 	"goniod/daemon/store"
+	"goniod/driver"
 	"goniod/sim"
 )
 
@@ -26,6 +27,12 @@ func startWatchRig(t testing.TB) *watchRig { return startWatchRigAt(t, 1e6) }
 
 // startWatchRigAt runs the simulator at the given speed (simulated seconds per wall second).
 func startWatchRigAt(t testing.TB, speed float64) *watchRig {
+	return startObservedRig(t, speed, nil, nil)
+}
+
+// startObservedRig is startWatchRigAt with an observer of the engine (nil: none) and the simulator seen
+// through wrap (nil: as it is).
+func startObservedRig(t testing.TB, speed float64, obs engine.Observer, wrap func(*sim.Instrument) driver.Instrument) *watchRig {
 	t.Helper()
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
 	st, err := store.Open(t.TempDir(), log)
@@ -40,11 +47,15 @@ func startWatchRigAt(t testing.TB, speed float64) *watchRig {
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)
 	}
-	ctl, err := instrument.NewController(in, cfg, log)
+	var drv driver.Instrument = in
+	if wrap != nil {
+		drv = wrap(in)
+	}
+	ctl, err := instrument.NewController(drv, cfg, log)
 	if err != nil {
 		t.Fatal(err)
 	}
-	eng, err := engine.New(engine.Options{Store: st, Controller: ctl, Log: log, Version: "test"})
+	eng, err := engine.New(engine.Options{Store: st, Controller: ctl, Log: log, Version: "test", Observer: obs})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -216,42 +227,5 @@ func waitPoints(t testing.TB, eng *engine.Engine, id string, n int) int {
 			t.Fatalf("scan %s has %d points after a minute, want %d", id, rec.PointsDone, n)
 		}
 		time.Sleep(time.Millisecond)
-	}
-}
-
-// BenchmarkAcquisitionWithWatchers measures durable points per second of a timed scan (fsync per point) with 0,
-// 100 and 1,000 live watchers: at zero dwell (the simulator runs a million times faster than real time, so the
-// store and the daemon set the pace) and at a 20 ms dwell in real time. Compare the points/s figures.
-func BenchmarkAcquisitionWithWatchers(b *testing.B) {
-	for _, dwell := range []struct {
-		name  string
-		speed float64
-		d     time.Duration
-	}{{"zero", 1e6, time.Millisecond}, {"20ms", 1, 20 * time.Millisecond}} {
-		for _, watchers := range []int{0, 100, 1000} {
-			b.Run(fmt.Sprintf("dwell=%s/watchers=%d", dwell.name, watchers), func(b *testing.B) {
-				r := startWatchRigAt(b, dwell.speed)
-				points := max(b.N, 100)
-				rec, err := r.eng.Submit(scan.Request{Kind: scan.Timed, Points: points, Dwell: dwell.d})
-				if err != nil {
-					b.Fatal(err)
-				}
-				var wg sync.WaitGroup
-				for range watchers {
-					wg.Add(1)
-					go func() {
-						defer wg.Done()
-						_ = r.eng.Watch(context.Background(), rec.ID, 0, func(engine.Event) error { return nil })
-					}()
-				}
-				b.ResetTimer()
-				final := waitState(b, r.eng, rec.ID, scan.Done, 10*time.Minute)
-				b.StopTimer()
-				wg.Wait()
-				took := final.Ended.Sub(final.Started)
-				b.ReportMetric(float64(points)/took.Seconds(), "points/s")
-				b.ReportMetric(0, "ns/op")
-			})
-		}
 	}
 }
