@@ -322,6 +322,15 @@ func (f *fields) next() []byte {
 	return field
 }
 
+// skip passes over the next field, which is n bytes long.
+func (f *fields) skip(n int) {
+	if n < len(f.line) {
+		n++ // and its comma
+	}
+	f.line = f.line[n:]
+	f.col++
+}
+
 // peek returns the length of the next field.
 func (f *fields) peek() int {
 	if i := bytes.IndexByte(f.line, ','); i >= 0 {
@@ -331,7 +340,11 @@ func (f *fields) peek() int {
 }
 
 func (f *fields) float() (float64, error) {
-	v, err := parseFloat(f.next())
+	if v, n, ok := scanDecimal(f.line); ok {
+		f.skip(n)
+		return v, nil
+	}
+	v, err := strconv.ParseFloat(string(f.next()), 64)
 	if err != nil {
 		return 0, fmt.Errorf("%w: column %s: %v", ErrBadLine, f.cols[f.col-1], err)
 	}
@@ -346,40 +359,49 @@ func (f *fields) count() (uint64, error) {
 	return v, nil
 }
 
-// parseFloat is strconv.ParseFloat(string(b), 64), bit for bit, with a shortcut for the plain decimals that
-// fill a points file ("22.5", "-0.0045", "1414.213562373095"): when the digits make an integer m < 2^53 and
-// there are k ≤ 22 of them after the point, m and 10^k are exact doubles and one division rounds correctly
-// (Clinger, "How to read floating point numbers accurately", PLDI 1990). Anything else goes to strconv.
+// parseFloat is strconv.ParseFloat(string(b), 64), bit for bit, with a shortcut for plain decimals (see
+// scanDecimal).
 func parseFloat(b []byte) (float64, error) {
-	neg := len(b) > 0 && b[0] == '-'
-	digits := b
-	if neg {
-		digits = b[1:]
+	if v, n, ok := scanDecimal(b); ok && n == len(b) {
+		return v, nil
 	}
+	return strconv.ParseFloat(string(b), 64)
+}
+
+// scanDecimal reads a plain decimal ("22.5", "-0.0045", "1414.213562373095") from the start of b up to a
+// comma or the end, and returns its value and length. When the digits make an integer m < 2^53 and k ≤ 22 of
+// them follow the point, m and 10^k are exact doubles and one division rounds correctly, as
+// strconv.ParseFloat does (Clinger, "How to read floating point numbers accurately", PLDI 1990). ok is false
+// for anything else, which strconv then reads.
+func scanDecimal(b []byte) (v float64, n int, ok bool) {
+	neg := len(b) > 0 && b[0] == '-'
+	if neg {
+		n = 1
+	}
+	start := n
 	var m uint64
-	frac, seen, point := 0, 0, false
-	for _, c := range digits {
-		switch {
+	frac, point := 0, false
+	for ; n < len(b) && b[n] != ','; n++ {
+		switch c := b[n]; {
 		case c >= '0' && c <= '9' && m < 1<<53/10:
 			m = m*10 + uint64(c-'0')
-			seen++
 			if point {
 				frac++
 			}
-		case c == '.' && !point:
+		case c == '.' && !point && n > start:
 			point = true
 		default:
-			return strconv.ParseFloat(string(b), 64)
+			return 0, n, false
 		}
 	}
-	if seen == 0 || frac > 22 || (point && digits[len(digits)-1] == '.') || digits[0] == '.' {
-		return strconv.ParseFloat(string(b), 64)
+	if n == start || b[n-1] == '.' || frac > 22 {
+		return 0, n, false
 	}
-	v := float64(m) / pow10[frac]
+	v = float64(m) / pow10[frac]
 	if neg {
 		v = -v
 	}
-	return v, nil
+	return v, n, true
 }
 
 // pow10 are the powers of ten that a double holds exactly.

@@ -131,3 +131,58 @@ func TestParseFloatMatchesStrconv(t *testing.T) {
 func FuzzParseFloat(f *testing.F) {
 	f.Fuzz(func(t *testing.T, s string) { checkParseFloat(t, s) })
 }
+
+// referenceDecode is the plain reading of a points line (split, then strconv and time.Parse per column) that
+// DecodeCSV must match, value for value; it only says whether a line is bad, not why.
+func referenceDecode(t *PointTable, line string) (*Point, bool) {
+	f := strings.Split(strings.TrimRight(line, "\r\n"), ",")
+	if len(f) != len(t.cols) {
+		return nil, false
+	}
+	ok := true
+	num := func(s string) float64 {
+		v, err := strconv.ParseFloat(s, 64)
+		ok = ok && err == nil
+		return v
+	}
+	count := func(s string, bits int) uint64 {
+		v, err := strconv.ParseUint(s, 10, bits)
+		ok = ok && err == nil
+		return v
+	}
+	ts, err := time.Parse(time.RFC3339Nano, f[1])
+	ok = ok && err == nil
+	p := &Point{Index: uint32(count(f[0], 32)), Time: timestamppb.New(ts)}
+	n := len(t.Axes)
+	for i, a := range t.Axes {
+		p.Axes = append(p.Axes, &AxisReading{Name: a, ActualDeg: num(f[2+i]), SetDeg: num(f[2+n+i])})
+	}
+	k := 2 + 2*n
+	p.DwellS, p.Counts, p.RateCps, p.RateErrCps = num(f[k]), count(f[k+1], 64), num(f[k+2]), num(f[k+3])
+	p.CorrectedRateCps, p.CorrectedRateErrCps, p.TubeKv, p.TubeMa = num(f[k+4]), num(f[k+5]), num(f[k+6]), num(f[k+7])
+	if f[k+8] != "" {
+		p.WavelengthNm = float(num(f[k+8]))
+	}
+	if f[k+9] != "" {
+		p.EnergyKev = float(num(f[k+9]))
+	}
+	for i, c := range t.Channels {
+		p.Channels = append(p.Channels, &ChannelReading{Name: c, Counts: count(f[k+10+i], 64)})
+	}
+	return p, ok
+}
+
+// FuzzDecodeCSV compares DecodeCSV with the plain reading on any line (seeds in testdata/fuzz).
+func FuzzDecodeCSV(f *testing.F) {
+	table := NewPointTable([]string{"theta", "twotheta"}, []string{"monitor"})
+	f.Fuzz(func(t *testing.T, line string) {
+		got, err := table.DecodeCSV([]byte(line))
+		want, ok := referenceDecode(table, line)
+		if (err == nil) != ok {
+			t.Fatalf("DecodeCSV(%q): error %v, the plain reading ok=%v", line, err, ok)
+		}
+		if ok && !proto.Equal(got, want) {
+			t.Fatalf("DecodeCSV(%q) = %v, the plain reading %v", line, got, want)
+		}
+	})
+}
