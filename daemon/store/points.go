@@ -179,7 +179,8 @@ func (a *Appender) Close() error { return a.f.Close() }
 
 // Reading ahead: a read of more than readBatch points decodes its lines on a goroutine of its own, at most
 // readAhead batches ahead of fn, so that decoding and the caller's work on the points (a gRPC send) run side
-// by side. The points in flight bound the memory of one read: about (readAhead+2)·readBatch points.
+// by side. The points in flight bound the memory of one read, about (readAhead+2)·readBatch points (some
+// 400 KB), and Store.readers the number of such reads at once.
 const (
 	readBatch = 256
 	readAhead = 2
@@ -205,7 +206,13 @@ func (s *Store) ReadPoints(ctx context.Context, id string, from, limit int, fn f
 	if limit > 0 && limit <= readBatch {
 		return rd.each(ctx, fn)
 	}
-	return rd.ahead(ctx, fn)
+	select {
+	case s.readers <- struct{}{}:
+		defer func() { <-s.readers }()
+		return rd.ahead(ctx, fn)
+	default:
+		return rd.each(ctx, fn)
+	}
 }
 
 // lineReader decodes the points of one read from an open points file.
@@ -255,6 +262,7 @@ func (rd *lineReader) ahead(ctx context.Context, fn func(*goniodv1.Point) error)
 				select {
 				case batches <- batch:
 				case <-ctx.Done():
+					readErr = ctx.Err()
 					return
 				}
 			}

@@ -11,6 +11,7 @@ import (
 	"log/slog"
 	"os"
 	"path/filepath"
+	"runtime"
 	"sort"
 	"strconv"
 	"strings"
@@ -44,6 +45,10 @@ type Store struct {
 
 	idxMu sync.Mutex
 	idx   map[string]*pointIndex // offset index of points files, by scan ID
+
+	// readers bounds the reads that decode ahead (see ReadPoints): as many as there are processors to run
+	// them, whatever the number of watchers catching up at once; further reads decode as they go.
+	readers chan struct{}
 }
 
 // Open opens (creating if needed) a data directory and takes its lock.
@@ -61,7 +66,7 @@ func Open(dir string, log *slog.Logger) (*Store, error) {
 		lf.Close()
 		return nil, fmt.Errorf("data dir %s is in use by another goniod: %w", dir, err)
 	}
-	s := &Store{dir: dir, log: log, lock: lf}
+	s := &Store{dir: dir, log: log, lock: lf, readers: make(chan struct{}, runtime.GOMAXPROCS(0))}
 	s.nextScan = s.highest(filepath.Join(dir, scansDir), scanPrefix) + 1
 	s.nextSeries = s.highest(filepath.Join(dir, seriesDir), seriesPrefx) + 1
 	return s, nil
