@@ -117,3 +117,21 @@ func TestShortSoak(t *testing.T) {
 		t.Fatalf("%d scans submitted, %d done and %d cancelled", r.Submitted, r.Done, r.CancelledRunning+r.CancelledQueued)
 	}
 }
+
+func TestMemoryGrowth(t *testing.T) {
+	const mib = 1 << 20
+	var ms []memory
+	for _, v := range []int64{10, 12, 20, 20, 21, 20, 30, 30} {
+		ms = append(ms, memory{RSS: v * mib})
+	}
+	scans := []int{0, 100, 200, 300, 400, 500, 600, 700}
+	// quarters of two readings: the second's median (upper of 20, 20) is 20 MiB, the last's 30 MiB; the middles
+	// of those quarters lie at readings 3 and 6, 300 scans apart.
+	ratio, perScan := memoryGrowth(ms, scans)
+	if ratio != 1.5 || perScan != 10*mib/300 {
+		t.Errorf("memoryGrowth = %v, %d; want 1.5, %d", ratio, perScan, 10*mib/300)
+	}
+	if ratio, perScan := memoryGrowth(ms[:3], scans[:3]); ratio != 0 || perScan != 0 {
+		t.Errorf("three readings: %v, %d; want nothing", ratio, perScan)
+	}
+}

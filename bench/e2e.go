@@ -205,6 +205,7 @@ func sameFiles(a, b string) (bool, error) {
 type analysisFigures struct {
 	Points          int
 	Analysis, Fetch time.Duration
+	ServerCPU       time.Duration // the daemon's processor time per analysis call (mean), reading the scan included
 	DNM             float64
 	Reflections     int
 }
@@ -223,13 +224,23 @@ func analyse(ctx context.Context, d *daemon, rounds int) (analysisFigures, error
 	}
 	a.Points = s.PointsDone
 	var analysis, fetch []time.Duration
+	var cpu time.Duration
 	for range rounds {
+		c0, err := processCPU(d.cmd.Process.Pid)
+		if err != nil {
+			return a, err
+		}
 		t0 := time.Now()
 		lat, err := d.Client.FitLattice(ctx, []string{s.ID}, nil, client.LatticeOptions{})
 		if err != nil {
 			return a, err
 		}
 		analysis = append(analysis, time.Since(t0))
+		c1, err := processCPU(d.cmd.Process.Pid)
+		if err != nil {
+			return a, err
+		}
+		cpu += c1 - c0
 		a.DNM, a.Reflections = lat.DNM.Value, len(lat.Used)
 		if math.Abs(a.DNM/lifD200-1) > 0.005 || a.Reflections < 4 {
 			return a, fmt.Errorf("the analysis found d = %g nm from %d reflections; LiF(200) is %g nm", a.DNM, a.Reflections, lifD200)
@@ -240,7 +251,7 @@ func analyse(ctx context.Context, d *daemon, rounds int) (analysisFigures, error
 		}
 		fetch = append(fetch, time.Since(t0))
 	}
-	a.Analysis, a.Fetch = median(analysis), median(fetch)
+	a.Analysis, a.Fetch, a.ServerCPU = median(analysis), median(fetch), cpu/time.Duration(rounds)
 	return a, nil
 }
 

@@ -132,6 +132,7 @@ type results struct {
 	fanOut      *fanOutFigures
 	soak        *soakResult
 	soakGrowth  float64
+	soakPerScan int64 // bytes of resident set per scan submitted during the soak
 	started     time.Time
 	took        time.Duration
 	errs        []error
@@ -241,7 +242,7 @@ func daemonSections(ctx context.Context, cfg config, bins map[string]string, r *
 	}
 	if want("analysis") {
 		progress("full analysis of a 10,000-point coupled scan on the daemon")
-		a, err := analyse(ctx, d, 5)
+		a, err := analyse(ctx, d, 15)
 		if err != nil {
 			r.fail("analysis", err)
 		} else {
@@ -277,7 +278,7 @@ func runSoak(ctx context.Context, cfg config, goniod string, r *results) {
 		r.fail("soak", err)
 	} else {
 		r.soak = s
-		r.soakGrowth = memoryGrowth(s.Memory)
+		r.soakGrowth, r.soakPerScan = memoryGrowth(s.Memory, s.ScansAt)
 		if s.Errors > 0 || s.Lost > 0 {
 			r.fail("soak", fmt.Errorf("%d errors, %d lost points; the first: %s", s.Errors, s.Lost, strings.Join(s.FirstErrors[:min(3, len(s.FirstErrors))], "; ")))
 		}
@@ -288,20 +289,25 @@ func runSoak(ctx context.Context, cfg config, goniod string, r *results) {
 }
 
 // memoryGrowth compares the median resident set of the last quarter of the readings with that of the second
-// quarter (the first is warm-up): 1 means flat.
-func memoryGrowth(ms []memory) float64 {
+// quarter (the first is warm-up): 1 means flat. perScan is the growth between the two medians per scan
+// submitted meanwhile (each scan's record stays in the daemon's memory).
+func memoryGrowth(ms []memory, scansAt []int) (ratio float64, perScan int64) {
 	q := len(ms) / 4
-	if q == 0 {
-		return 0
+	if q == 0 || len(scansAt) != len(ms) {
+		return 0, 0
 	}
-	med := func(part []memory) float64 {
+	med := func(part []memory) int64 {
 		ds := make([]time.Duration, len(part))
 		for i, m := range part {
 			ds[i] = time.Duration(m.RSS)
 		}
-		return float64(median(ds))
+		return int64(median(ds))
 	}
-	return med(ms[len(ms)-q:]) / med(ms[q:2*q])
+	early, late := med(ms[q:2*q]), med(ms[len(ms)-q:])
+	if scans := scansAt[len(ms)-1-q/2] - scansAt[q+q/2]; scans > 0 {
+		perScan = (late - early) / int64(scans)
+	}
+	return float64(late) / float64(early), perScan
 }
 
 func mib(b int64) string { return strconv.FormatFloat(float64(b)/(1<<20), 'f', 1, 64) + " MiB" }

@@ -246,6 +246,8 @@ func analysisRows(t *table, r *results) {
 		t.add(row{section: "7", figure: fmt.Sprintf("The same on the daemon through gRPC, one lattice-fit call on a stored %s-point scan (d = %.5f nm from %d reflections)",
 			count(float64(a.Points)), a.DNM, a.Reflections), value: dur(a.Analysis),
 			baseline: "fetching that scan (client, CSV): " + dur(a.Fetch), ratio: times(float64(a.Analysis) / float64(a.Fetch))})
+		t.add(row{section: "7", figure: "The same: the daemon's processor time per call, reading the scan included (mean)",
+			value: dur(a.ServerCPU), aim: "≤ 10 ms", met: yes(a.ServerCPU <= 10*time.Millisecond)})
 	}
 }
 
@@ -259,6 +261,7 @@ func soakRows(t *table, r *results) {
 		count(float64(s.CancelledQueued)), count(float64(s.Watches)), count(float64(s.Delivered)), count(float64(s.Polls)))
 	t.add(row{section: "8", figure: what + ": errors", value: fmt.Sprint(s.Errors), aim: "0", met: yes(s.Errors == 0)})
 	t.add(row{section: "8", figure: "Soak: points lost (watchers and store against each scan's record)", value: fmt.Sprint(s.Lost), aim: "0", met: yes(s.Lost == 0)})
+	t.add(row{section: "8", figure: "Soak: time of a state poll under the load, p50 / p99", value: dur(s.PollTime.P50) + " / " + dur(s.PollTime.P99)})
 	t.add(row{section: "8", figure: "Soak: the daemon's goroutines after the load, its connections closed", value: fmt.Sprint(s.GoroutinesAfter),
 		baseline: fmt.Sprintf("before the load: %d", s.GoroutinesBefore), ratio: times(float64(s.GoroutinesAfter) / float64(s.GoroutinesBefore)),
 		aim: "back to before", met: yes(s.GoroutinesAfter <= s.GoroutinesBefore)})
@@ -271,6 +274,8 @@ func soakRows(t *table, r *results) {
 		t.add(row{section: "8", figure: "Soak: daemon RSS, median of the last quarter against the second quarter (highest reading)",
 			value: mib(s.Memory[len(s.Memory)-1].RSS) + " (" + mib(peak) + ")", baseline: "second quarter: " + mib(s.Memory[q].RSS),
 			ratio: times(r.soakGrowth), aim: "stable (≤ 1.1)", met: yes(r.soakGrowth <= 1.1)})
+		t.add(row{section: "8", figure: "Soak: that growth per scan submitted meanwhile (every scan's record stays in memory)",
+			value: strconv.FormatFloat(float64(r.soakPerScan)/1024, 'f', 1, 64) + " KiB"})
 	}
 }
 

@@ -47,6 +47,7 @@ type soakResult struct {
 	Errors           int64
 	FirstErrors      []string
 	Memory           []memory // one reading per Sample
+	ScansAt          []int    // scans submitted at each reading
 	// The daemon's goroutines before the load, and after it once its connections have closed.
 	GoroutinesBefore, GoroutinesAfter int
 }
@@ -116,7 +117,7 @@ func soak(ctx context.Context, t soakTarget, o soakOptions, progress func(string
 		defer tick.Stop()
 		for {
 			if m, err := readMemory(t.PID); err == nil {
-				r.Memory = append(r.Memory, m)
+				r.Memory, r.ScansAt = append(r.Memory, m), append(r.ScansAt, int(s.submitted.Load()))
 			}
 			select {
 			case <-load.Done():
