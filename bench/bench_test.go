@@ -87,7 +87,7 @@ func TestMachineDescription(t *testing.T) {
 func TestFormats(t *testing.T) {
 	for _, c := range []struct{ got, want string }{
 		{count(1234567.4), "1,234,567"}, {count(999), "999"}, {count(1000), "1,000"},
-		{times(0.8), "0.80×"}, {times(0.0071), "0.0071×"}, {times(36.14), "36.14×"}, {times(151.2), "151×"},
+		{times(0.8), "0.8×"}, {times(0.7977), "0.798×"}, {times(0.0071), "0.0071×"}, {times(36.14), "36.1×"}, {times(151.2), "151×"},
 		{dur(4040 * time.Nanosecond), "4.04 µs"}, {dur(5710 * time.Microsecond), "5.71 ms"}, {dur(2 * time.Second), "2.00 s"},
 		{dur(33200 * time.Nanosecond), "33.2 µs"}, {dur(999950 * time.Nanosecond), "1000 µs"}, {dur(58 * time.Millisecond), "58.0 ms"},
 	} {

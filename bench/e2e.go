@@ -121,7 +121,11 @@ func storeAndServe(ctx context.Context, d *daemon, gonio, dir string, n int, bar
 	if err != nil {
 		return r, err
 	}
-	if r.Streaming, err = compareStreaming(ctx, d, bare, s.ID, n, 3); err != nil {
+	rounds := 3
+	if n <= 100_000 {
+		rounds = 5
+	}
+	if r.Streaming, err = compareStreaming(ctx, d, bare, s.ID, n, rounds); err != nil {
 		return r, err
 	}
 	r.Memory, err = readMemory(d.cmd.Process.Pid)

@@ -295,14 +295,12 @@ func yes(ok bool) string {
 	return "**no**"
 }
 
+// times prints a ratio with three significant digits (no more than the integer part above 100).
 func times(x float64) string {
-	switch {
-	case x >= 100:
+	if x >= 100 {
 		return strconv.FormatFloat(x, 'f', 0, 64) + "×"
-	case x >= 0.1:
-		return strconv.FormatFloat(x, 'f', 2, 64) + "×"
 	}
-	return strconv.FormatFloat(x, 'g', 2, 64) + "×"
+	return strconv.FormatFloat(x, 'g', 3, 64) + "×"
 }
 
 // dur prints a duration with about three significant digits in a fitting unit.
