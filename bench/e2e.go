@@ -47,30 +47,6 @@ func waitDone(ctx context.Context, c *client.Client, id string) (client.Scan, er
 	}
 }
 
-// watchAll follows a scan from point 0 to its end with the generated stub and returns how many points came.
-func watchAll(ctx context.Context, scans goniodv1.ScansClient, id string) (int, error) {
-	st, err := scans.WatchScan(ctx, &goniodv1.WatchScanRequest{Id: id})
-	if err != nil {
-		return 0, err
-	}
-	n := 0
-	for {
-		ev, err := st.Recv()
-		if err != nil {
-			return n, err
-		}
-		if p := ev.GetPoint(); p != nil {
-			if int(p.Index) != n {
-				return n, fmt.Errorf("point %d where %d was due", p.Index, n)
-			}
-			n++
-		}
-		if ev.GetEnd() {
-			return n, nil
-		}
-	}
-}
-
 // zeroDwell is a timed scan of n points at the simulator's speed, the fastest points goniod can take, on the
 // first-order Cu Kα reflection at 30 kV / 0.8 mA (the demo scenario), so that every column holds a real value.
 func zeroDwell(n int) client.ScanRequest {
@@ -101,11 +77,7 @@ func storeAndServe(ctx context.Context, d *daemon, gonio, dir string, n int, bar
 	r.ID = s.ID
 	watched := make(chan error, 1)
 	go func() {
-		got, err := watchAll(ctx, scans, s.ID)
-		if err == nil && got != n {
-			err = fmt.Errorf("live watcher got %d points of %d", got, n)
-		}
-		watched <- err
+		watched <- follow(ctx, scans, s.ID, n, nil, nil)
 	}()
 	if _, err := waitDone(ctx, d.Client, s.ID); err != nil {
 		return r, err

@@ -93,7 +93,7 @@ func fanOut(ctx context.Context, addr, id string, watchers, conns, points int) (
 	for w := range watchers {
 		go func() {
 			lat[w] = make([]time.Duration, 0, points)
-			errs <- follow(ctx, stubs[w%conns], id, points, &attached, func(p *goniodv1.Point) {
+			errs <- follow(ctx, stubs[w%conns], id, points, attached.Done, func(p *goniodv1.Point) {
 				now := time.Now()
 				if taken := p.GetTime().AsTime(); taken.UnixNano() >= from.Load() {
 					lat[w] = append(lat[w], now.Sub(taken))
@@ -118,19 +118,23 @@ func fanOut(ctx context.Context, addr, id string, watchers, conns, points int) (
 	return all, nil
 }
 
-// follow watches a scan to its end: it marks attached at the first record, calls point for each point and
-// checks that points 0 to want-1 came, each once and in order.
-func follow(ctx context.Context, scans goniodv1.ScansClient, id string, want int, attached *sync.WaitGroup, point func(*goniodv1.Point)) error {
+// follow watches a scan from point 0 to its end with the generated stub: it calls attached (if not nil) once
+// the stream answers, point (if not nil) for each point, and checks that points 0 to want-1 came, each once
+// and in order.
+func follow(ctx context.Context, scans goniodv1.ScansClient, id string, want int, attached func(), point func(*goniodv1.Point)) error {
+	if attached == nil {
+		attached = func() {}
+	}
 	st, err := scans.WatchScan(ctx, &goniodv1.WatchScanRequest{Id: id})
 	if err != nil {
-		attached.Done()
+		attached()
 		return err
 	}
 	first, next := true, 0
 	for {
 		ev, err := st.Recv()
 		if first {
-			attached.Done()
+			attached()
 			first = false
 		}
 		if err != nil {
@@ -141,7 +145,9 @@ func follow(ctx context.Context, scans goniodv1.ScansClient, id string, want int
 				return fmt.Errorf("watch %s: point %d where %d was due", id, p.Index, next)
 			}
 			next++
-			point(p)
+			if point != nil {
+				point(p)
+			}
 		}
 		if ev.GetEnd() {
 			if next != want {
