@@ -108,7 +108,7 @@ func acquisitionRows(t *table, r *results, pointTime time.Duration) {
 	}
 	base := fmt.Sprintf("store alone, one fsync per point (%s each): %s points/s", dur(time.Duration(fsync*1e3)), count(one))
 	for _, w := range []int{1, 100, 1000} {
-		label := fmt.Sprintf("Durable points/s, zero dwell, %d watcher%s in process", w, map[bool]string{true: "", false: "s"}[w == 1])
+		label := fmt.Sprintf("Durable points/s, zero dwell, %s watcher%s in process", count(float64(w)), map[bool]string{true: "", false: "s"}[w == 1])
 		v, err := metric(r.acquisition, fmt.Sprintf("BenchmarkAcquisitionWithWatchers/dwell=zero/watchers=%d", w), "points/s")
 		if err != nil {
 			t.missing("2", label, err)
