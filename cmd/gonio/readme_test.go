@@ -143,8 +143,11 @@ func runReadmeCommand(t *testing.T, line int, args []string, wantCode int) {
 	t.Helper()
 	ctx := context.Background()
 	if strings.Contains(strings.Join(args, " "), "--follow") {
+		// Interrupted as by Ctrl-C: a cancel, not a deadline, which gRPC would send to the daemon, whose
+		// reset can reach gonio before its own timer fires.
 		var cancel context.CancelFunc
-		ctx, cancel = context.WithTimeout(ctx, time.Second)
+		ctx, cancel = context.WithCancel(ctx)
+		defer time.AfterFunc(time.Second, cancel).Stop()
 		defer cancel()
 	}
 	var out, errb bytes.Buffer
