@@ -91,7 +91,10 @@ func (s *ScanService) ListScans(_ context.Context, req *goniodv1.ListScansReques
 		}
 		states = append(states, d)
 	}
-	recs, next := s.Engine.List(req.GetPageToken(), size, states)
+	recs, next, err := s.Engine.List(req.GetPageToken(), size, states)
+	if err != nil {
+		return nil, toStatus(err)
+	}
 	out := &goniodv1.ListScansResponse{NextPageToken: next}
 	for _, r := range recs {
 		out.Scans = append(out.Scans, recordToProto(r))

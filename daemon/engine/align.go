@@ -322,7 +322,11 @@ func (e *Engine) alignScan(ctx context.Context, out *Alignment, axis string, fro
 	e.mu.Lock()
 	e.running = nil
 	e.mu.Unlock()
-	if final := en.hub.record(); final.State != scan.Done {
+	final, err := e.record(en)
+	if err != nil {
+		return nil, fmt.Errorf("alignment, %s: %w", what, err)
+	}
+	if final.State != scan.Done {
 		if !final.State.Terminal() {
 			// A paused alignment scan would hold the queue for a routine that has given up: it ends here.
 			if _, err := e.setState(en, func(r *scan.Record) {

@@ -8,8 +8,8 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
-	"sort"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"goniod/daemon/instrument"
@@ -65,7 +65,7 @@ type Engine struct {
 
 	mu      sync.Mutex
 	scans   map[string]*entry
-	ids     []string // creation order
+	ids     []string // in increasing order
 	manual  bool     // a manual operation holds the instrument
 	running *entry
 	// draining: the daemon shuts down; the running scan stops after its point and no other starts (Drain)
@@ -73,13 +73,98 @@ type Engine struct {
 	wake     chan struct{}
 }
 
-// entry is one scan known to the engine.
+// entry is one scan known to the engine. A scan that has ended and that nobody watches is cold: its hub is
+// dropped and its record lives on disk only, read when asked for, so that the daemon's memory does not grow
+// with the lab's history. What the queue needs of a cold scan (its state, its points) stays in the entry; an
+// ended scan never changes again, so a hub that was dropped stays true for whoever still holds it.
 type entry struct {
-	hub *hub
+	id string
+	// hub is the scan's record and the publisher of its points and state changes; nil while the scan is cold.
+	hub atomic.Pointer[hub]
+	// cold is set before the hub is dropped.
+	cold atomic.Pointer[coldScan]
 	// saveMu orders the changes of the record with their saves.
 	saveMu sync.Mutex
 	// Requests from operators, read by the runner between points; guarded by Engine.mu.
 	pauseReq, cancelReq bool
+}
+
+// coldScan is what an entry keeps of an ended scan without its hub.
+type coldScan struct {
+	state   scan.State
+	durable int
+}
+
+func newEntry(rec scan.Record, durable int) *entry {
+	en := &entry{id: rec.ID}
+	if rec.State.Terminal() {
+		en.cold.Store(&coldScan{state: rec.State, durable: durable})
+	} else {
+		en.hub.Store(newHub(rec, durable))
+	}
+	return en
+}
+
+// live returns the hub of a scan that has not ended (queued, running, paused, being changed by an operator):
+// only ended scans go cold.
+func (en *entry) live() *hub { return en.hub.Load() }
+
+// state is the scan's present state.
+func (en *entry) state() scan.State {
+	if h := en.hub.Load(); h != nil {
+		return h.record().State
+	}
+	return en.cold.Load().state
+}
+
+// durable is the number of the scan's points on disk.
+func (en *entry) durable() int {
+	if h := en.hub.Load(); h != nil {
+		return h.durablePoints()
+	}
+	return en.cold.Load().durable
+}
+
+// cool drops h, the scan's hub, if the scan has ended and h has no watchers. Call it only once the ended
+// record is saved: a cold scan's record is read from the store.
+func (en *entry) cool(h *hub) {
+	h.mu.Lock()
+	defer h.mu.Unlock()
+	if !h.rec.State.Terminal() || h.watchers > 0 {
+		return
+	}
+	en.cold.Store(&coldScan{state: h.rec.State, durable: int(h.durable.Load())})
+	en.hub.CompareAndSwap(h, nil)
+}
+
+// record returns a scan's record, from its hub or, for a cold scan, from the store.
+func (e *Engine) record(en *entry) (scan.Record, error) {
+	if h := en.hub.Load(); h != nil {
+		return h.record(), nil
+	}
+	rec, err := e.store.LoadRecord(en.id)
+	if err != nil {
+		return scan.Record{}, fmt.Errorf("%w: %w", ErrStorage, err)
+	}
+	c := en.cold.Load()
+	rec.State, rec.PointsDone = c.state, c.durable
+	return *rec, nil
+}
+
+// warm returns the scan's hub, making one for a cold scan.
+func (e *Engine) warm(en *entry) (*hub, error) {
+	for {
+		if h := en.hub.Load(); h != nil {
+			return h, nil
+		}
+		rec, err := e.record(en)
+		if err != nil {
+			return nil, err
+		}
+		if h := newHub(rec, rec.PointsDone); en.hub.CompareAndSwap(nil, h) {
+			return h, nil
+		}
+	}
 }
 
 // New loads the store's scans: running (or paused) ones become interrupted with their durable points intact and
@@ -102,7 +187,7 @@ func New(o Options) (*Engine, error) {
 		if err != nil {
 			return nil, err
 		}
-		e.scans[rec.ID] = &entry{hub: newHub(*rec, durable)}
+		e.scans[rec.ID] = newEntry(*rec, durable)
 		e.ids = append(e.ids, rec.ID)
 	}
 	if err := e.applyStoredAlignment(); err != nil {
@@ -183,38 +268,49 @@ func (e *Engine) Get(id string) (scan.Record, error) {
 	if err != nil {
 		return scan.Record{}, err
 	}
-	return en.hub.record(), nil
+	return e.record(en)
 }
 
 // List returns up to limit records, newest first, starting after the ID `after` (empty: from the newest), only
-// in the given states (all when empty). next is the ID to continue after, empty at the end.
-func (e *Engine) List(after string, limit int, states []scan.State) (recs []scan.Record, next string) {
-	e.mu.Lock()
-	ids := append([]string(nil), e.ids...)
-	e.mu.Unlock()
-	sort.Strings(ids)
+// in the given states (all when empty). next is the ID to continue after, empty at the end. Only the records
+// of the page are read.
+func (e *Engine) List(after string, limit int, states []scan.State) (recs []scan.Record, next string, err error) {
 	want := map[scan.State]bool{}
 	for _, s := range states {
 		want[s] = true
 	}
-	for i := len(ids) - 1; i >= 0; i-- {
-		if after != "" && ids[i] >= after {
+	var page []*entry
+	e.mu.Lock()
+	for i := len(e.ids) - 1; i >= 0 && len(page) <= limit; i-- { // IDs are made in increasing order
+		en := e.scans[e.ids[i]]
+		if after != "" && en.id >= after || len(want) > 0 && !want[en.state()] {
 			continue
 		}
-		en, err := e.lookup(ids[i])
+		page = append(page, en)
+	}
+	e.mu.Unlock()
+	if len(page) > limit {
+		page, next = page[:limit], page[limit-1].id
+	}
+	for _, en := range page {
+		rec, err := e.record(en)
 		if err != nil {
-			continue
-		}
-		rec := en.hub.record()
-		if len(want) > 0 && !want[rec.State] {
-			continue
-		}
-		if len(recs) == limit {
-			return recs, recs[len(recs)-1].ID
+			return nil, "", err
 		}
 		recs = append(recs, rec)
 	}
-	return recs, ""
+	return recs, next, nil
+}
+
+// CountByState returns how many scans are in each state.
+func (e *Engine) CountByState() map[scan.State]int {
+	e.mu.Lock()
+	defer e.mu.Unlock()
+	out := map[scan.State]int{}
+	for _, en := range e.scans {
+		out[en.state()]++
+	}
+	return out
 }
 
 // QueueLength is the number of queued scans.
@@ -223,7 +319,7 @@ func (e *Engine) QueueLength() int {
 	defer e.mu.Unlock()
 	n := 0
 	for _, en := range e.scans {
-		if en.hub.record().State == scan.Queued {
+		if en.state() == scan.Queued {
 			n++
 		}
 	}
@@ -237,7 +333,11 @@ func (e *Engine) Running() (scan.Record, bool) {
 	if e.running == nil {
 		return scan.Record{}, false
 	}
-	return e.running.hub.record(), true
+	h := e.running.live()
+	if h == nil {
+		return scan.Record{}, false // it has just ended; the runner is letting go of it
+	}
+	return h.record(), true
 }
 
 // errManualBusy is returned when a manual operation meets a running or paused scan, or another manual one.
@@ -247,16 +347,16 @@ var errManualBusy = scan.ErrBusy
 // refuses it with ErrBusy naming the scan.
 func (e *Engine) Manual(fn func() error) error {
 	e.mu.Lock()
-	if e.running != nil {
-		rec := e.running.hub.record()
+	if en := e.running; en != nil {
+		state := en.state()
 		e.mu.Unlock()
-		if rec.State == scan.Paused {
-			return fmt.Errorf("%w: scan %s is paused; resume or cancel it first", errManualBusy, rec.ID)
+		if state == scan.Paused {
+			return fmt.Errorf("%w: scan %s is paused; resume or cancel it first", errManualBusy, en.id)
 		}
-		return fmt.Errorf("%w: scan %s is running; pause or cancel it first", errManualBusy, rec.ID)
+		return fmt.Errorf("%w: scan %s is running; pause or cancel it first", errManualBusy, en.id)
 	}
 	for _, id := range e.ids {
-		if e.scans[id].hub.record().State == scan.Paused {
+		if e.scans[id].state() == scan.Paused {
 			e.mu.Unlock()
 			return fmt.Errorf("%w: scan %s is paused; resume or cancel it first", errManualBusy, id)
 		}
@@ -282,7 +382,7 @@ func (e *Engine) ReadPoints(ctx context.Context, id string, from, limit int, fn 
 	if err != nil {
 		return err
 	}
-	durable := en.hub.durablePoints()
+	durable := en.durable()
 	if from >= durable {
 		return nil
 	}

@@ -33,9 +33,10 @@ type hub struct {
 	ended   atomic.Bool                   // the scan reached a terminal state
 	changed atomic.Pointer[chan struct{}] // closed and replaced when watchers should look again
 
-	mu      sync.Mutex
-	rec     scan.Record
-	history []change // the latest state changes, oldest first
+	mu       sync.Mutex
+	rec      scan.Record
+	history  []change // the latest state changes, oldest first
+	watchers int      // watches in progress
 	// wake-up pacing (see wakeInterval)
 	lastWake    time.Time
 	wakePending bool
@@ -157,6 +158,13 @@ func (h *hub) snapshot() (scan.Record, uint64) {
 	h.mu.Lock()
 	defer h.mu.Unlock()
 	return h.rec, h.version.Load()
+}
+
+// watching counts a watch in (+1) or out (-1).
+func (h *hub) watching(delta int) {
+	h.mu.Lock()
+	h.watchers += delta
+	h.mu.Unlock()
 }
 
 // durablePoints is the number of points on disk.

@@ -41,7 +41,9 @@ func newHubRig(t *testing.T) *hubRig {
 	}
 	t.Cleanup(func() { app.Close() })
 	h := newHub(rec, 0)
-	e := &Engine{store: st, log: log, scans: map[string]*entry{rec.ID: {hub: h}}}
+	en := &entry{id: rec.ID}
+	en.hub.Store(h)
+	e := &Engine{store: st, log: log, scans: map[string]*entry{rec.ID: en}}
 	return &hubRig{e: e, h: h, app: app, rec: rec}
 }
 
@@ -59,9 +61,13 @@ func (r *hubRig) add(t *testing.T, n int) {
 	r.h.publish(pts...)
 }
 
-func (r *hubRig) state(s scan.State) {
+func (r *hubRig) state(t *testing.T, s scan.State) {
+	t.Helper()
 	r.rec.State, r.rec.PointsDone = s, r.app.Count()
 	r.h.setRecord(r.rec)
+	if err := r.e.store.SaveRecord(&r.rec); err != nil {
+		t.Fatal(err)
+	}
 }
 
 // event is a watch event in a comparable form: a point index, or a state.
@@ -109,12 +115,12 @@ func TestWatchBehindTheRing(t *testing.T) {
 		next()
 	}
 	r.add(t, ringSize+2100)
-	r.state(scan.Paused) // after point ringSize+2099
-	r.state(scan.Running)
+	r.state(t, scan.Paused) // after point ringSize+2099
+	r.state(t, scan.Running)
 	r.add(t, 3*ringSize) // point 2000 is long out of the ring now
 	close(gate)
 	r.add(t, 3*ringSize+10)
-	r.state(scan.Done)
+	r.state(t, scan.Done)
 	select {
 	case err := <-done:
 		if err != nil {
@@ -149,7 +155,7 @@ func TestWatchBehindTheRing(t *testing.T) {
 func TestWatchFromIndex(t *testing.T) {
 	r := newHubRig(t)
 	r.add(t, 50)
-	r.state(scan.Done)
+	r.state(t, scan.Done)
 	for _, c := range []struct {
 		from  int
 		first string

@@ -16,13 +16,15 @@ var ErrStorage = errors.New("data directory")
 func (e *Engine) setState(en *entry, mutate func(*scan.Record)) (scan.Record, error) {
 	en.saveMu.Lock()
 	defer en.saveMu.Unlock()
-	rec := en.hub.record()
+	h := en.live()
+	rec := h.record()
 	mutate(&rec)
-	en.hub.setRecord(rec)
+	h.setRecord(rec)
 	e.obs.StateChanged(&rec)
 	if err := e.store.SaveRecord(&rec); err != nil {
 		return rec, fmt.Errorf("%w: %w", ErrStorage, err)
 	}
+	en.cool(h) // only once the record on disk is the truth
 	return rec, nil
 }
 
@@ -66,11 +68,16 @@ func (e *Engine) operate(id, op string, flag func(*entry), apply func(*scan.Reco
 	en.saveMu.Lock()
 	defer en.saveMu.Unlock()
 	e.mu.Lock()
-	rec := en.hub.record()
-	if err := scan.Allow(op, rec.State); err != nil {
+	if err := scan.Allow(op, en.state()); err != nil {
 		e.mu.Unlock()
+		rec, rerr := e.record(en)
+		if rerr != nil {
+			return rec, rerr
+		}
 		return rec, err
 	}
+	h := en.live() // a scan that may still change is never cold
+	rec := h.record()
 	if flag != nil && e.running == en && (rec.State == scan.Running || rec.State == scan.Queued) {
 		flag(en)
 		e.mu.Unlock()
@@ -79,7 +86,7 @@ func (e *Engine) operate(id, op string, flag func(*entry), apply func(*scan.Reco
 	}
 	apply(&rec)
 	en.pauseReq, en.cancelReq = false, false
-	en.hub.setRecord(rec)
+	h.setRecord(rec)
 	e.mu.Unlock()
 	e.obs.StateChanged(&rec)
 	e.log.Info("scan "+string(rec.State), "scan", id, "op", op)
@@ -87,5 +94,6 @@ func (e *Engine) operate(id, op string, flag func(*entry), apply func(*scan.Reco
 	if err := e.store.SaveRecord(&rec); err != nil {
 		return rec, fmt.Errorf("%w: %w", ErrStorage, err)
 	}
+	en.cool(h)
 	return rec, nil
 }

@@ -51,7 +51,7 @@ func (e *Engine) next() *entry {
 	var pick *entry
 	for _, id := range e.ids {
 		en := e.scans[id]
-		switch en.hub.record().State {
+		switch en.state() {
 		case scan.Paused:
 			return nil
 		case scan.Queued:
@@ -75,14 +75,15 @@ type outcome struct {
 
 // runScan runs one scan from its next point to its end, or until it is paused, cancelled, or fails.
 func (e *Engine) runScan(ctx context.Context, en *entry) {
-	rec := en.hub.record()
+	rec := en.live().record()
 	log := e.log.With("scan", rec.ID)
 	out := e.execute(ctx, en, log)
 	e.finish(en, out, log)
 }
 
 func (e *Engine) execute(ctx context.Context, en *entry, log *slog.Logger) outcome {
-	rec := en.hub.record()
+	h := en.live()
+	rec := h.record()
 	cfg := e.ctl.Config()
 	plan, err := scan.NewPlan(rec.Request, &cfg)
 	if err != nil {
@@ -118,11 +119,11 @@ func (e *Engine) execute(ctx context.Context, en *entry, log *slog.Logger) outco
 	}
 	var durable func([]*goniodv1.Point, time.Time)
 	if d, ok := e.obs.(DurableObserver); ok {
-		id := en.hub.record().ID
+		id := rec.ID
 		durable = func(points []*goniodv1.Point, at time.Time) { d.PointsDurable(id, points, at) }
 	}
-	r.commit = startCommitter(app, en.hub, durable, func(batch []taken) {
-		rec := en.hub.record()
+	r.commit = startCommitter(app, h, durable, func(batch []taken) {
+		rec := h.record()
 		last := batch[len(batch)-1].p
 		e.ctl.NoteRate(last.RateCps, last.CorrectedRateCps)
 		for _, t := range batch {
@@ -161,7 +162,7 @@ func (r *pointRunner) run(ctx context.Context, first int) outcome {
 
 // prepareSource applies the scan's tube setting and reports whether high voltage is on for the scan.
 func (e *Engine) prepareSource(ctx context.Context, en *entry, log *slog.Logger) (bool, *outcome) {
-	rec := en.hub.record()
+	rec := en.live().record()
 	src := rec.Source
 	if src == nil {
 		src = rec.Request.Source
@@ -231,7 +232,7 @@ func storageFailure(what string, err error) outcome {
 // finish records how a scan ended and leaves the instrument safe: high voltage off unless a finished scan asked
 // to keep it.
 func (e *Engine) finish(en *entry, out outcome, log *slog.Logger) {
-	rec := en.hub.record()
+	rec := en.live().record()
 	keep := out.state == scan.Done && rec.Request.KeepHighVoltage
 	if !keep {
 		e.highVoltageOff(log)
@@ -337,7 +338,7 @@ func (r *pointRunner) point(ctx context.Context, i int) *outcome {
 // count counts one point: a fixed dwell, or slices until the relative Poisson error reaches the target or the
 // dwell (the longest allowed) is used up.
 func (r *pointRunner) count(ctx context.Context) (driver.Counts, error) {
-	req := r.en.hub.record().Request
+	req := r.en.live().record().Request
 	if req.RelativeError == 0 {
 		return r.e.ctl.Count(ctx, req.Dwell)
 	}

@@ -2,6 +2,7 @@ package engine
 
 import (
 	"fmt"
+	"slices"
 
 	"goniod/daemon/instrument"
 	"goniod/daemon/scan"
@@ -96,10 +97,13 @@ func (e *Engine) create(r scan.Request, p *scan.Plan, seriesID, id string, cfg *
 	if err := e.store.Create(&rec, table.Header()); err != nil {
 		return rec, nil, fmt.Errorf("%w: %w", ErrStorage, err)
 	}
-	en := &entry{hub: newHub(rec, 0)}
+	en := newEntry(rec, 0)
 	e.mu.Lock()
 	e.scans[rec.ID] = en
 	e.ids = append(e.ids, rec.ID)
+	if n := len(e.ids); n > 1 && e.ids[n-2] > e.ids[n-1] {
+		slices.Sort(e.ids) // an alignment took its ID while a series was being stored
+	}
 	e.mu.Unlock()
 	e.log.Info("scan queued", "scan", rec.ID, "kind", r.Kind, "points", rec.PointsTotal, "series", seriesID, "label", r.Label)
 	e.obs.StateChanged(&rec)

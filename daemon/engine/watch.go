@@ -29,8 +29,14 @@ func (e *Engine) Watch(ctx context.Context, id string, from int, send func(Event
 	if err != nil {
 		return err
 	}
-	w := &watch{e: e, id: id, h: en.hub, cursor: max(from, 0), send: send}
-	rec, version := w.h.snapshot() // the present record; earlier changes are not replayed
+	h, err := e.warm(en)
+	if err != nil {
+		return err
+	}
+	h.watching(1)
+	defer func() { h.watching(-1); en.cool(h) }()
+	w := &watch{e: e, id: id, h: h, cursor: max(from, 0), send: send}
+	rec, version := h.snapshot() // the present record; earlier changes are not replayed
 	w.seen = version
 	if err := send(Event{Record: &rec}); err != nil {
 		return err

@@ -21,6 +21,7 @@ import (
 type watchRig struct {
 	eng *engine.Engine
 	sim *sim.Instrument
+	dir string // the data directory
 }
 
 func startWatchRig(t testing.TB) *watchRig { return startWatchRigAt(t, 1e6) }
@@ -35,7 +36,8 @@ func startWatchRigAt(t testing.TB, speed float64) *watchRig {
 func startObservedRig(t testing.TB, speed float64, obs engine.Observer, wrap func(*sim.Instrument) driver.Instrument) *watchRig {
 	t.Helper()
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
-	st, err := store.Open(t.TempDir(), log)
+	dir := t.TempDir()
+	st, err := store.Open(dir, log)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -65,7 +67,7 @@ func startObservedRig(t testing.TB, speed float64, obs engine.Observer, wrap fun
 	go func() { defer wg.Done(); ctl.Run(ctx) }()
 	go func() { defer wg.Done(); eng.Run(ctx) }()
 	t.Cleanup(func() { cancel(); wg.Wait(); st.Close() })
-	return &watchRig{eng: eng, sim: in}
+	return &watchRig{eng: eng, sim: in, dir: dir}
 }
 
 // timedScan is N points at the present position: no moves, so points come as fast as the store takes them.

@@ -3,7 +3,6 @@
 package metrics
 
 import (
-	"math"
 	"sync"
 	"time"
 
@@ -15,9 +14,9 @@ import (
 	goniodv1 "goniod/proto/goniod/v1"
 )
 
-// Scans is what the metrics read from the scan engine at scrape time (in-memory records only).
+// Scans is what the metrics read from the scan engine at scrape time (from memory, never from the disk).
 type Scans interface {
-	List(after string, limit int, states []scan.State) ([]scan.Record, string)
+	CountByState() map[scan.State]int
 }
 
 // Metrics holds goniod's collectors. It is an engine.Observer and the safety monitor's event recorder.
@@ -174,11 +173,7 @@ func (c *stateCollector) Collect(ch chan<- prometheus.Metric) {
 		gauge(descUpdated, float64(st.Updated.UnixNano())/1e9)
 	}
 	gauge(descInfo, 1, cfg.Name, cfg.Driver, cfg.Tube.Anode, cfg.Crystal)
-	byState := map[scan.State]int{}
-	recs, _ := c.scans.List("", math.MaxInt, nil)
-	for _, r := range recs {
-		byState[r.State]++
-	}
+	byState := c.scans.CountByState()
 	gauge(descQueue, float64(byState[scan.Queued]))
 	for _, s := range allStates {
 		gauge(descScans, float64(byState[s]), string(s))

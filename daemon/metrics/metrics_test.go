@@ -28,7 +28,13 @@ var update = flag.Bool("update", false, "rewrite the golden exposition files")
 
 type fakeScans []scan.Record
 
-func (f fakeScans) List(string, int, []scan.State) ([]scan.Record, string) { return f, "" }
+func (f fakeScans) CountByState() map[scan.State]int {
+	out := map[scan.State]int{}
+	for _, r := range f {
+		out[r.State]++
+	}
+	return out
+}
 
 // goldenRig is the metrics over a simulated instrument whose cached state was read once, with fixed scans.
 func goldenRig(t *testing.T) (*prometheus.Registry, *Metrics, *instrument.Controller) {

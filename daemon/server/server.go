@@ -189,9 +189,7 @@ func newServices(o Options, st *store.Store, ctl *instrument.Controller, icfg in
 	cfg, log := o.Config, o.Log
 	sv := &services{reg: prometheus.NewRegistry()}
 	sv.reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
-	m := metrics.New(sv.reg, ctl, scanLister(func(after string, limit int, states []scan.State) ([]scan.Record, string) {
-		return sv.eng.List(after, limit, states)
-	}))
+	m := metrics.New(sv.reg, ctl, scanCounter(func() map[scan.State]int { return sv.eng.CountByState() }))
 	var err error
 	sv.eng, err = engine.New(engine.Options{Store: st, Controller: ctl, Log: log.With("part", "engine"), Observer: m, Version: o.Version})
 	if err != nil {
@@ -320,12 +318,10 @@ func drain(eng *engine.Engine, limit time.Duration, log *slog.Logger) {
 	}
 }
 
-// scanLister adapts a function to metrics.Scans.
-type scanLister func(after string, limit int, states []scan.State) ([]scan.Record, string)
+// scanCounter adapts a function to metrics.Scans (the engine is made after the metrics, which observe it).
+type scanCounter func() map[scan.State]int
 
-func (f scanLister) List(after string, limit int, states []scan.State) ([]scan.Record, string) {
-	return f(after, limit, states)
-}
+func (f scanCounter) CountByState() map[scan.State]int { return f() }
 
 // callerLimits applies the defaults to the configured per-caller limits; negative values switch a limit off.
 func callerLimits(l config.Limits) auth.Limits {

@@ -177,20 +177,31 @@ func (s *Store) LoadRecords() ([]*scan.Record, error) {
 		if !e.IsDir() || !ValidID(e.Name()) {
 			continue
 		}
-		b, err := os.ReadFile(filepath.Join(s.scanDir(e.Name()), recordFile))
+		rec, err := s.LoadRecord(e.Name())
 		if err != nil {
-			s.log.Warn("scan directory without a record, skipped", "scan", e.Name(), "err", err)
+			s.log.Warn("scan directory without a readable record, skipped", "scan", e.Name(), "err", err)
 			continue
 		}
-		var rec scan.Record
-		if err := json.Unmarshal(b, &rec); err != nil {
-			s.log.Warn("unreadable scan record, skipped", "scan", e.Name(), "err", err)
-			continue
-		}
-		out = append(out, &rec)
+		out = append(out, rec)
 	}
 	sort.Slice(out, func(i, j int) bool { return out[i].ID < out[j].ID })
 	return out, nil
+}
+
+// LoadRecord reads one scan's record.
+func (s *Store) LoadRecord(id string) (*scan.Record, error) {
+	if !ValidID(id) {
+		return nil, fmt.Errorf("load scan %q: not a scan ID", id)
+	}
+	b, err := os.ReadFile(filepath.Join(s.scanDir(id), recordFile))
+	if err != nil {
+		return nil, fmt.Errorf("load scan %s: %w", id, err)
+	}
+	var rec scan.Record
+	if err := json.Unmarshal(b, &rec); err != nil {
+		return nil, fmt.Errorf("load scan %s: %w", id, err)
+	}
+	return &rec, nil
 }
 
 // SaveSeries writes a series record atomically.

@@ -1,0 +1,125 @@
+package engine_test
+
+import (
+	"context"
+	"errors"
+	"os"
+	"path/filepath"
+	"testing"
+	"time"
+
+	"goniod/daemon/engine"
+	"goniod/daemon/scan"
+)
+
+// Ended scans that nobody watches keep only their state in memory (see BenchmarkHeapPerEndedScan); everything
+// else is read back from the store when asked for. Each way in must still see the whole scan.
+func TestEndedScansReadBackWhole(t *testing.T) {
+	r := startWatchRig(t)
+	var ids []string
+	for i, label := range []string{"first", "second", "third"} {
+		req := timedScan(i + 2)
+		req.Label, req.Operator = label, "op"
+		rec, err := r.eng.Submit(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		ids = append(ids, rec.ID)
+	}
+	held, err := r.eng.Submit(timedScan(1))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := r.eng.Pause(held.ID); err != nil { // queued: held at once
+		t.Fatal(err)
+	}
+	for _, id := range ids {
+		waitState(t, r.eng, id, scan.Done, 30*time.Second)
+	}
+
+	for i, id := range ids {
+		rec, err := r.eng.Get(id)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if rec.State != scan.Done || rec.PointsDone != i+2 || rec.Request.Label != []string{"first", "second", "third"}[i] ||
+			rec.Started.IsZero() || rec.Ended.IsZero() || rec.Info.Driver == "" {
+			t.Errorf("%s read back as %+v", id, rec)
+		}
+		var points []int
+		var records []scan.State
+		end := false
+		err = r.eng.Watch(context.Background(), id, 0, func(ev engine.Event) error {
+			if ev.Point != nil {
+				points = append(points, int(ev.Point.Index))
+			} else {
+				records, end = append(records, ev.Record.State), ev.End
+			}
+			return nil
+		})
+		if err != nil || !end || len(points) != i+2 || points[len(points)-1] != i+1 || records[0] != scan.Done {
+			t.Errorf("watch of ended %s: points %v, records %v, end %v, err %v", id, points, records, end, err)
+		}
+	}
+
+	// Paging over cold and live scans alike, newest first, with a state filter.
+	page, next, err := r.eng.List("", 2, nil)
+	if err != nil || len(page) != 2 || page[0].ID != held.ID || page[1].ID != ids[2] || next != ids[2] {
+		t.Fatalf("first page %v next %q err %v", recIDs(page), next, err)
+	}
+	page, next, err = r.eng.List(next, 2, nil)
+	if err != nil || len(page) != 2 || page[0].ID != ids[1] || page[1].ID != ids[0] || next != "" {
+		t.Fatalf("second page %v next %q err %v", recIDs(page), next, err)
+	}
+	if page[1].Request.Label != "first" || page[1].PointsDone != 2 {
+		t.Errorf("listed cold record %+v", page[1])
+	}
+	done, _, err := r.eng.List("", 10, []scan.State{scan.Done})
+	if err != nil || len(done) != 3 {
+		t.Errorf("done scans listed: %v (%v)", recIDs(done), err)
+	}
+	if n := r.eng.CountByState(); n[scan.Done] != 3 || n[scan.Held] != 1 {
+		t.Errorf("counted by state: %v", n)
+	}
+
+	// An ended scan refuses operations with its record.
+	rec, err := r.eng.Cancel(ids[0])
+	if !errors.Is(err, scan.ErrState) || rec.ID != ids[0] || rec.State != scan.Done {
+		t.Errorf("cancel of a done scan: %v, record %s %s", err, rec.ID, rec.State)
+	}
+	if _, err := r.eng.Resume(ids[1]); !errors.Is(err, scan.ErrState) {
+		t.Errorf("resume of a done scan: %v", err)
+	}
+}
+
+// A scan whose end could not be saved stays in memory: the running daemon's truth is that it ended, and the
+// record on disk (which a cold scan would be read from) does not say so.
+func TestEndNotSavedStaysInMemory(t *testing.T) {
+	r := startWatchRig(t)
+	rec, err := r.eng.Submit(timedScan(1))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := r.eng.Pause(rec.ID); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.RemoveAll(filepath.Join(r.dir, "scans", rec.ID)); err != nil {
+		t.Fatal(err)
+	}
+	got, err := r.eng.Cancel(rec.ID)
+	if !errors.Is(err, engine.ErrStorage) || got.State != scan.Cancelled {
+		t.Fatalf("cancel with the scan's directory gone: %v, state %s; want a storage error and cancelled", err, got.State)
+	}
+	again, err := r.eng.Get(rec.ID)
+	if err != nil || again.State != scan.Cancelled {
+		t.Errorf("after the failed save the scan reads %s (%v), want cancelled", again.State, err)
+	}
+}
+
+func recIDs(recs []scan.Record) []string {
+	var out []string
+	for _, r := range recs {
+		out = append(out, r.ID)
+	}
+	return out
+}
