@@ -296,6 +296,16 @@ func memoryGrowth(ms []memory, scansAt []int) (ratio float64, perScan int64) {
 	if q == 0 || len(scansAt) != len(ms) {
 		return 0, 0
 	}
+	early, late := quarterMedians(ms)
+	if scans := scansAt[len(ms)-1-q/2] - scansAt[q+q/2]; scans > 0 {
+		perScan = (late - early) / int64(scans)
+	}
+	return float64(late) / float64(early), perScan
+}
+
+// quarterMedians returns the median resident set of the second quarter of the readings and of the last.
+func quarterMedians(ms []memory) (early, late int64) {
+	q := len(ms) / 4
 	med := func(part []memory) int64 {
 		ds := make([]time.Duration, len(part))
 		for i, m := range part {
@@ -303,11 +313,7 @@ func memoryGrowth(ms []memory, scansAt []int) (ratio float64, perScan int64) {
 		}
 		return int64(median(ds))
 	}
-	early, late := med(ms[q:2*q]), med(ms[len(ms)-q:])
-	if scans := scansAt[len(ms)-1-q/2] - scansAt[q+q/2]; scans > 0 {
-		perScan = (late - early) / int64(scans)
-	}
-	return float64(late) / float64(early), perScan
+	return med(ms[q : 2*q]), med(ms[len(ms)-q:])
 }
 
 func mib(b int64) string { return strconv.FormatFloat(float64(b)/(1<<20), 'f', 1, 64) + " MiB" }

@@ -29,7 +29,12 @@ type pointIndex struct {
 	lines   int
 }
 
-// index returns the offset index of a scan's points file, creating an empty one.
+// maxIndexes is how many points files' indexes the store keeps: enough for the scans being taken, watched and
+// fetched at one time, so that memory does not grow with every scan ever read.
+const maxIndexes = 64
+
+// index returns the offset index of a scan's points file, creating an empty one. With maxIndexes kept, one
+// chosen at random makes way (a later read of its file builds it again).
 func (s *Store) index(id string) *pointIndex {
 	s.idxMu.Lock()
 	defer s.idxMu.Unlock()
@@ -38,6 +43,12 @@ func (s *Store) index(id string) *pointIndex {
 	}
 	ix := s.idx[id]
 	if ix == nil {
+		for other := range s.idx {
+			if len(s.idx) < maxIndexes {
+				break
+			}
+			delete(s.idx, other)
+		}
 		ix = &pointIndex{}
 		s.idx[id] = ix
 	}

@@ -62,6 +62,29 @@ func TestReadPagesAcrossTheIndex(t *testing.T) {
 	}
 }
 
+// The store keeps a bounded number of indexes, and a file whose index made way reads as before.
+func TestIndexesAreBounded(t *testing.T) {
+	s := newStore(t)
+	var ids []string
+	for range 2 * maxIndexes {
+		id := create(t, s, 0)
+		fill(t, s, id, 0, 3)
+		if got := readIndexes(t, s, id, 1, 0); len(got) != 2 || got[0] != 1 {
+			t.Fatalf("scan %s read %v, want points 1 and 2", id, got)
+		}
+		ids = append(ids, id)
+	}
+	s.idxMu.Lock()
+	n := len(s.idx)
+	s.idxMu.Unlock()
+	if n > maxIndexes {
+		t.Errorf("%d indexes kept after reading %d scans, want at most %d", n, len(ids), maxIndexes)
+	}
+	if got := readIndexes(t, s, ids[0], 0, 0); len(got) != 3 {
+		t.Errorf("the first scan read back %d points, want 3", len(got))
+	}
+}
+
 // The index grows with the file, and forgets what a torn-line cut removed: points appended after the cut are
 // read at their true offsets.
 func TestIndexFollowsGrowthAndCuts(t *testing.T) {
