@@ -39,6 +39,8 @@ func toStatus(err error) error {
 	switch {
 	case errors.Is(err, scan.ErrNotFound):
 		code = codes.NotFound
+	case errors.Is(err, scan.ErrQueueFull):
+		code = codes.ResourceExhausted
 	case errors.Is(err, scan.ErrState), errors.Is(err, scan.ErrBusy), errors.Is(err, driver.ErrInterlockOpen),
 		errors.Is(err, driver.ErrHighVoltageOff):
 		code = codes.FailedPrecondition

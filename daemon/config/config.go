@@ -70,6 +70,9 @@ type Limits struct {
 	RequestsPerSecond float64 `yaml:"requests_per_second"`
 	RequestBurst      int     `yaml:"request_burst"`
 	StreamsPerClient  int     `yaml:"streams_per_client"`
+	// Scans queued or held at one time (0: default 1000; negative: no limit): a runaway script cannot fill the
+	// disk with scans that would never run.
+	MaxQueued int `yaml:"max_queued"`
 }
 
 // Security configures TLS and tokens.

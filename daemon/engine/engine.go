@@ -46,6 +46,8 @@ type Options struct {
 	Version string
 	// Now is the clock for timestamps (default time.Now).
 	Now func() time.Time
+	// MaxQueued is how many scans may wait to run (queued or held) at one time; 0: no limit.
+	MaxQueued int
 }
 
 // Engine is the scan queue and runner.
@@ -56,6 +58,8 @@ type Engine struct {
 	obs     Observer
 	version string
 	now     func() time.Time
+	// maxQueued: see Options.MaxQueued
+	maxQueued int
 
 	// submitMu keeps the scans of one submission (a series) consecutive in the queue and in ID order.
 	submitMu sync.Mutex
@@ -177,7 +181,7 @@ func New(o Options) (*Engine, error) {
 		o.Now = time.Now
 	}
 	e := &Engine{store: o.Store, ctl: o.Controller, log: o.Log, obs: o.Observer, version: o.Version, now: o.Now,
-		scans: map[string]*entry{}, wake: make(chan struct{}, 1)}
+		maxQueued: o.MaxQueued, scans: map[string]*entry{}, wake: make(chan struct{}, 1)}
 	recs, err := e.store.LoadRecords()
 	if err != nil {
 		return nil, err

@@ -28,6 +28,9 @@ func (e *Engine) Submit(r scan.Request) (scan.Record, error) {
 	}
 	e.submitMu.Lock()
 	defer e.submitMu.Unlock()
+	if err := e.roomFor(1); err != nil {
+		return scan.Record{}, err
+	}
 	rec, _, err := e.create(r, p, "", e.store.NewScanID(), &cfg)
 	if err != nil {
 		return scan.Record{}, err
@@ -61,6 +64,9 @@ func (e *Engine) SubmitSeries(sr scan.SeriesRequest) (SeriesRecord, error) {
 	}
 	e.submitMu.Lock()
 	defer e.submitMu.Unlock()
+	if err := e.roomFor(len(reqs)); err != nil {
+		return SeriesRecord{}, err
+	}
 	out := SeriesRecord{ID: e.store.NewSeriesID(), Request: sr}
 	for range reqs {
 		out.ScanIDs = append(out.ScanIDs, e.store.NewScanID())
@@ -85,6 +91,27 @@ func (e *Engine) GetSeries(id string) (SeriesRecord, error) {
 	var s SeriesRecord
 	err := e.store.LoadSeries(id, &s)
 	return s, err
+}
+
+// roomFor returns ErrQueueFull when n more scans would take the scans waiting to run beyond the limit. The
+// caller holds submitMu, so that no other submission takes the room meanwhile.
+func (e *Engine) roomFor(n int) error {
+	if e.maxQueued <= 0 {
+		return nil
+	}
+	waiting := 0
+	e.mu.Lock()
+	for _, en := range e.scans {
+		if s := en.state(); s == scan.Queued || s == scan.Held {
+			waiting++
+		}
+	}
+	e.mu.Unlock()
+	if waiting+n > e.maxQueued {
+		return fmt.Errorf("%w: %d scans are queued or held and %d more would pass the limit of %d (limits.max_queued); "+
+			"cancel some or let them run first", scan.ErrQueueFull, waiting, n, e.maxQueued)
+	}
+	return nil
 }
 
 // create stores a new queued scan and makes it known to the engine.

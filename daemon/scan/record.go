@@ -66,6 +66,8 @@ var (
 	ErrState = errors.New("not allowed in this state")
 	// ErrBusy: manual control while a scan runs.
 	ErrBusy = errors.New("instrument busy")
+	// ErrQueueFull: a submission would take the scans waiting to run beyond the configured limit.
+	ErrQueueFull = errors.New("queue full")
 )
 
 // transitions lists which operation moves a scan from which states.

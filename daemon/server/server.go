@@ -191,7 +191,8 @@ func newServices(o Options, st *store.Store, ctl *instrument.Controller, icfg in
 	sv.reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
 	m := metrics.New(sv.reg, ctl, scanCounter(func() map[scan.State]int { return sv.eng.CountByState() }))
 	var err error
-	sv.eng, err = engine.New(engine.Options{Store: st, Controller: ctl, Log: log.With("part", "engine"), Observer: m, Version: o.Version})
+	sv.eng, err = engine.New(engine.Options{Store: st, Controller: ctl, Log: log.With("part", "engine"), Observer: m, Version: o.Version,
+		MaxQueued: maxQueued(cfg.Limits.MaxQueued)})
 	if err != nil {
 		return nil, err
 	}
@@ -322,6 +323,20 @@ func drain(eng *engine.Engine, limit time.Duration, log *slog.Logger) {
 type scanCounter func() map[scan.State]int
 
 func (f scanCounter) CountByState() map[scan.State]int { return f() }
+
+// defaultMaxQueued is how many scans may wait to run when the configuration does not say.
+const defaultMaxQueued = 1000
+
+// maxQueued applies the default to the configured limit on waiting scans; negative switches it off.
+func maxQueued(n int) int {
+	switch {
+	case n == 0:
+		return defaultMaxQueued
+	case n < 0:
+		return 0
+	}
+	return n
+}
 
 // callerLimits applies the defaults to the configured per-caller limits; negative values switch a limit off.
 func callerLimits(l config.Limits) auth.Limits {

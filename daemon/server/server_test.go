@@ -9,7 +9,10 @@ import (
 	"testing"
 	"time"
 
+	"google.golang.org/grpc/codes"
+
 	"goniod/client"
+	"goniod/daemon/config"
 	"goniod/daemon/server/servertest"
 )
 
@@ -159,5 +162,59 @@ func TestBadRequestsRefusedByField(t *testing.T) {
 	}
 	if _, err := d.Client.State(ctx); err != nil {
 		t.Errorf("daemon not serving after bad requests: %v", err)
+	}
+}
+
+// The scans waiting to run are capped (limits.max_queued): a submission past the cap is refused whole with
+// ResourceExhausted naming the limit, and a cancelled scan makes room again.
+func TestQueueLimit(t *testing.T) {
+	d := servertest.Start(t, servertest.WithConfig(func(f *config.File) { f.Limits.MaxQueued = 3 }))
+	ctx := context.Background()
+	long := client.ScanRequest{Kind: client.Timed, Points: 1000, Dwell: time.Hour} // 0.36 s a point at the test speed
+	running, err := d.Client.Submit(ctx, long)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { d.Client.Cancel(context.Background(), running.ID) })
+	for {
+		s, err := d.Client.Scan(ctx, running.ID)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if s.State == client.Running {
+			break
+		}
+		time.Sleep(5 * time.Millisecond)
+	}
+	short := client.ScanRequest{Kind: client.Timed, Points: 1, Dwell: time.Second}
+	var queued []string
+	for range 3 {
+		s, err := d.Client.Submit(ctx, short)
+		if err != nil {
+			t.Fatalf("scan %d of the limit: %v", len(queued)+1, err)
+		}
+		queued = append(queued, s.ID)
+	}
+	_, err = d.Client.Submit(ctx, short)
+	if !errors.Is(err, client.ErrRefused) {
+		t.Fatalf("fourth waiting scan: %v, want a refusal", err)
+	}
+	var ce *client.Error
+	if !errors.As(err, &ce) || ce.Code != codes.ResourceExhausted || !strings.Contains(err.Error(), "limits.max_queued") ||
+		!strings.Contains(err.Error(), "3") {
+		t.Errorf("refusal %v does not say ResourceExhausted and name the limit", err)
+	}
+	if _, err := d.Client.SubmitSeries(ctx, client.SeriesRequest{Scan: short, Sources: []client.Source{{KV: 20, MA: 0.5}, {KV: 25, MA: 0.5}}}); !errors.Is(err, client.ErrRefused) {
+		t.Errorf("a series past the limit: %v, want a refusal", err)
+	}
+	all, _, err := d.Client.List(ctx, client.ListOptions{})
+	if err != nil || len(all) != 4 {
+		t.Fatalf("%d scans known after the refusals (%v), want the running one and 3 queued", len(all), err)
+	}
+	if _, err := d.Client.Cancel(ctx, queued[0]); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := d.Client.Submit(ctx, short); err != nil {
+		t.Errorf("after a cancel made room: %v", err)
 	}
 }
