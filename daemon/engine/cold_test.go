@@ -96,12 +96,24 @@ func TestEndedScansReadBackWhole(t *testing.T) {
 // record on disk (which a cold scan would be read from) does not say so.
 func TestEndNotSavedStaysInMemory(t *testing.T) {
 	r := startWatchRig(t)
+	// A long scan keeps the runner busy, so that the next one stays queued and holding it is all that happens
+	// to it.
+	long, err := r.eng.Submit(scan.Request{Kind: scan.Timed, Points: 1000, Dwell: time.Hour})
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() {
+		if _, err := r.eng.Cancel(long.ID); err == nil {
+			waitState(t, r.eng, long.ID, scan.Cancelled, 30*time.Second)
+		}
+	})
+	waitState(t, r.eng, long.ID, scan.Running, 30*time.Second)
 	rec, err := r.eng.Submit(timedScan(1))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if _, err := r.eng.Pause(rec.ID); err != nil {
-		t.Fatal(err)
+	if held, err := r.eng.Pause(rec.ID); err != nil || held.State != scan.Held {
+		t.Fatalf("hold of a queued scan: %s, %v", held.State, err)
 	}
 	if err := os.RemoveAll(filepath.Join(r.dir, "scans", rec.ID)); err != nil {
 		t.Fatal(err)
@@ -122,4 +134,39 @@ func recIDs(recs []scan.Record) []string {
 		out = append(out, r.ID)
 	}
 	return out
+}
+
+// A restart reads the records of ended scans and writes none of them: with months of scans in the data
+// directory a start would otherwise cost two fsyncs a scan (BenchmarkStartWithHistory).
+func TestRestartLeavesEndedRecordsAlone(t *testing.T) {
+	dir := t.TempDir()
+	st, eng, ctl := openHistory(t, dir)
+	runScans(t, eng, ctl, 1, 5)()
+	recs, _, err := eng.List("", 1, nil)
+	if err != nil || len(recs) != 1 {
+		t.Fatalf("%d scans (%v)", len(recs), err)
+	}
+	rec := recs[0]
+	st.Close()
+	path := filepath.Join(dir, "scans", rec.ID, "scan.json")
+	before, err := os.Stat(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	old := time.Now().Add(-time.Hour).Truncate(time.Second)
+	if err := os.Chtimes(path, old, old); err != nil {
+		t.Fatal(err)
+	}
+	st, eng, _ = openHistory(t, dir)
+	defer st.Close()
+	after, err := os.Stat(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !after.ModTime().Equal(old) || after.Size() != before.Size() {
+		t.Errorf("the restart rewrote the ended scan's record (modified %v, size %d → %d)", after.ModTime(), before.Size(), after.Size())
+	}
+	if got, err := eng.Get(rec.ID); err != nil || got.State != scan.Done || got.PointsDone != 5 {
+		t.Errorf("after the restart: %s with %d points (%v)", got.State, got.PointsDone, err)
+	}
 }

@@ -200,9 +200,16 @@ func New(o Options) (*Engine, error) {
 	return e, nil
 }
 
-// recover brings one loaded record into a consistent state after a start.
+// recover brings one loaded record into a consistent state after a start, and saves it only if it changed:
+// a restart with months of ended scans reads their records and writes nothing.
 func (e *Engine) recover(rec *scan.Record) (int, error) {
 	log := e.log.With("scan", rec.ID)
+	was := struct {
+		state   scan.State
+		reason  string
+		points  int
+		endedAt time.Time
+	}{rec.State, rec.Reason, rec.PointsDone, rec.Ended}
 	var reason string
 	switch rec.State {
 	case scan.Running, scan.Paused:
@@ -212,8 +219,14 @@ func (e *Engine) recover(rec *scan.Record) (int, error) {
 		rec.State = scan.Held
 		rec.Reason = "queued when the daemon stopped; release to run"
 	}
+	// An ended scan's record was saved after its last point was stored: its count is final.
 	durable := rec.PointsDone
-	if !rec.State.Terminal() && rec.State != scan.Held {
+	switch {
+	case rec.State == scan.Held:
+		if n, err := e.store.CountPoints(rec.ID); err == nil {
+			durable = n
+		}
+	case !rec.State.Terminal():
 		app, got, err := e.store.OpenAppender(rec.ID)
 		switch {
 		case errors.Is(err, store.ErrDamaged):
@@ -222,6 +235,9 @@ func (e *Engine) recover(rec *scan.Record) (int, error) {
 			reason = ""
 			rec.Reason = "found damaged at start, the file is left as it was for inspection: " + err.Error()
 			log.Error("points file damaged; scan failed", "err", err)
+			if n, err := e.store.CountPoints(rec.ID); err == nil {
+				durable = n
+			}
 		case err != nil:
 			return 0, fmt.Errorf("recover scan %s: %w", rec.ID, err)
 		default:
@@ -232,16 +248,14 @@ func (e *Engine) recover(rec *scan.Record) (int, error) {
 			durable = got.Points
 		}
 	}
-	if rec.State.Terminal() || rec.State == scan.Held {
-		if n, err := e.store.CountPoints(rec.ID); err == nil {
-			durable = n
-		}
-	}
 	if reason != "" {
 		rec.Reason = fmt.Sprintf("%s; %d points durable; resume to continue", reason, durable)
 		log.Info("scan interrupted by a restart", "points", durable)
 	}
 	rec.PointsDone = durable
+	if rec.State == was.state && rec.Reason == was.reason && rec.PointsDone == was.points && rec.Ended.Equal(was.endedAt) {
+		return durable, nil
+	}
 	if err := e.store.SaveRecord(rec); err != nil {
 		return 0, err
 	}
