@@ -15,7 +15,8 @@ func helpTopics() []*cobra.Command {
   2  bad command line, bad plan or configuration file, or a request the daemon refused as invalid
      (the message names the field and the allowed range)
   3  no such scan, series or result
-  4  refused in the present state (a scan runs, the scan's state does not allow it, interlock open)
+  4  refused in the present state (a scan runs, the scan's state does not allow it, interlock open, the queue
+     full, too many calls)
   5  daemon or instrument link unreachable (status --all: no instrument answered)
   6  missing, unknown or under-privileged token
   7  the scan (or one scan of the plan or series) that gonio waited for ended failed or cancelled`,
