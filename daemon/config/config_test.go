@@ -1,6 +1,7 @@
 package config
 
 import (
+	"os"
 	"strings"
 	"testing"
 	"time"
@@ -87,4 +88,32 @@ func TestApplyOverridesAndValidates(t *testing.T) {
 	if err := f.Apply(&c); err == nil || !strings.Contains(err.Error(), "max_kv") {
 		t.Fatalf("got %v, want an error naming max_kv", err)
 	}
+}
+
+// FuzzParse: any configuration text is read or refused with an error, never a crash; what is read applies
+// to an instrument's configuration, again with an error or a configuration that validates.
+func FuzzParse(f *testing.F) {
+	for _, path := range []string{"../../testdata/goniod-sim.yaml", "../../cmd/goniod/deploy/goniod.yaml"} {
+		b, err := os.ReadFile(path)
+		if err != nil {
+			f.Fatal(err)
+		}
+		f.Add(b)
+	}
+	f.Add([]byte("limits:\n  max_queued: -1\n  max_dwell: 1ns\ninstrument:\n  zero_offsets: {theta: .nan}\n"))
+	f.Add([]byte("instrument:\n  axes:\n    - {name: theta, min_deg: 90, max_deg: -90, resolution_deg: 0}\n"))
+	f.Fuzz(func(t *testing.T, b []byte) {
+		file, err := Parse("fuzz.yaml", b)
+		if err != nil {
+			return
+		}
+		c := instrument.Config{Axes: []instrument.Axis{{Name: "theta", MinDeg: -10, MaxDeg: 100, ResolutionDeg: 0.001, Coupling: 1}},
+			Tube: instrument.Tube{Anode: "Cu", MaxKV: 35, MaxMA: 1, MaxPowerW: 30}, MaxPoints: 1000, MaxDwell: time.Hour}
+		if err := file.Apply(&c); err != nil {
+			return
+		}
+		if err := c.Validate(); err != nil {
+			t.Fatalf("applied a configuration that does not validate: %v", err)
+		}
+	})
 }

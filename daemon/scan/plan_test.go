@@ -307,3 +307,51 @@ func checkRefusal(t *testing.T, err error, field, says string) {
 	}
 	t.Errorf("refusal %v does not name %s", err, field)
 }
+
+// FuzzNewPlan: any request is planned or refused with field errors, never a crash; a plan has between 1 and
+// the maximum of points, and every target is finite and within its axis' limits.
+func FuzzNewPlan(f *testing.F) {
+	f.Add(uint8(0), uint8(0), 10.0, 30.0, 0.1, 0, int64(time.Second), 0.0, 0.0, 0.0)
+	f.Add(uint8(1), uint8(2), -90.0, 90.0, 0.01, 0, int64(time.Second), 0.05, 30.0, 0.8)
+	f.Add(uint8(2), uint8(1), 22.5, 0.0, 0.0, 7, int64(time.Millisecond), 0.0, 35.0, 1.0)
+	f.Add(uint8(3), uint8(0), 1.0, 2.0, 0.0, 0, int64(time.Second), 0.0, 0.0, 0.0)
+	f.Add(uint8(0), uint8(1), math.Inf(1), math.NaN(), -0.0, -1, int64(-1), math.NaN(), math.Inf(-1), 1e308)
+	kinds := []Kind{Coupled, AxisOnly, Timed, List, "bogus"}
+	axes := []string{"", "theta", "twotheta", "chi", "omega"}
+	f.Fuzz(func(t *testing.T, kind, axis uint8, from, to, step float64, points int, dwell int64, relErr, kv, ma float64) {
+		cfg := testConfig()
+		r := Request{Kind: kinds[int(kind)%len(kinds)], Axis: axes[int(axis)%len(axes)], FromDeg: from, ToDeg: to,
+			StepDeg: step, Points: points, Dwell: time.Duration(dwell), RelativeError: relErr}
+		switch r.Kind {
+		case Timed:
+			r.At = map[string]float64{r.Axis: from}
+		case List:
+			r.Positions = []map[string]float64{{r.Axis: from}, {r.Axis: to}}
+		}
+		if kv != 0 || ma != 0 {
+			r.Source = &Source{KV: kv, MA: ma}
+		}
+		p, err := NewPlan(r, cfg)
+		if err != nil {
+			if len(validate.Fields(err)) == 0 {
+				t.Fatalf("refusal without a field: %v", err)
+			}
+			return
+		}
+		if p.Len() < 1 || p.Len() > cfg.MaxPoints {
+			t.Fatalf("%d points (maximum %d) for %+v", p.Len(), cfg.MaxPoints, r)
+		}
+		limits := map[string]instrument.Axis{}
+		for _, a := range cfg.Axes {
+			limits[a.Name] = a
+		}
+		for _, i := range []int{0, p.Len() / 2, p.Len() - 1} {
+			for _, tg := range p.Targets(i) {
+				a, ok := limits[tg.Axis]
+				if !ok || math.IsNaN(tg.Deg) || tg.Deg < a.MinDeg-1e-9 || tg.Deg > a.MaxDeg+1e-9 {
+					t.Fatalf("point %d targets %s at %v (limits %v to %v) for %+v", i, tg.Axis, tg.Deg, a.MinDeg, a.MaxDeg, r)
+				}
+			}
+		}
+	})
+}
