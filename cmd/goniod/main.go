@@ -35,7 +35,7 @@ func main() {
 // gcPercent is goniod's garbage-collection target unless the environment sets GOGC. Its live heap is a few MiB
 // (ended scans keep only their state in memory), so Go's default (100) collects after every few MiB allocated:
 // while streaming stored points, every few thousand points. 150 makes a third fewer collections, which brings a
-// replay's rate from 0.73–0.76 to 0.86–0.87 of a bare gRPC server's, for about 3 MiB more resident memory
+// replay's rate from 0.73–0.76 to 0.78–0.88 of a bare gRPC server's, for about 3 MiB more resident memory
 // (README, "Performance").
 const gcPercent = 150
 
