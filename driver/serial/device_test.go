@@ -6,6 +6,7 @@ import (
 	"context"
 	"os"
 	"path/filepath"
+	"sync"
 	"testing"
 	"time"
 
@@ -26,6 +27,15 @@ type device struct {
 // startDevice serves a simulated instrument on a pseudo-terminal until the test ends.
 func startDevice(t testing.TB, cfg sim.Config, o scpi.Options) *device {
 	t.Helper()
+	d, stop := serveAt(t, cfg, o, filepath.Join(t.TempDir(), "tty"))
+	t.Cleanup(stop)
+	return d
+}
+
+// serveAt serves a simulated instrument on a pseudo-terminal linked at link until stop is called (the link
+// goes away, as the node of an unplugged adapter does).
+func serveAt(t testing.TB, cfg sim.Config, o scpi.Options, link string) (d *device, stop func()) {
+	t.Helper()
 	if cfg.Seed == 0 {
 		cfg.Seed = 1
 	}
@@ -36,19 +46,22 @@ func startDevice(t testing.TB, cfg sim.Config, o scpi.Options) *device {
 	if err != nil {
 		t.Fatal(err)
 	}
-	d := &device{inst: inst, srv: scpi.NewServer(inst, o), link: filepath.Join(t.TempDir(), "tty")}
+	d = &device{inst: inst, srv: scpi.NewServer(inst, o), link: link}
 	ctx, cancel := context.WithCancel(context.Background())
 	done := make(chan error, 1)
 	go func() { done <- d.srv.ServePTY(ctx, scpi.PTYOptions{Link: d.link}) }()
-	t.Cleanup(func() {
-		cancel()
-		d.srv.Close()
-		if err := <-done; err != nil {
-			t.Errorf("ServePTY: %v", err)
-		}
-	})
+	var once sync.Once
+	stop = func() {
+		once.Do(func() {
+			cancel()
+			d.srv.Close()
+			if err := <-done; err != nil {
+				t.Errorf("ServePTY: %v", err)
+			}
+		})
+	}
 	d.waitLink(t)
-	return d
+	return d, stop
 }
 
 func (d *device) waitLink(t testing.TB) {

@@ -31,11 +31,13 @@ type Driver struct {
 	done  chan struct{}
 	token uint64 // last sync token; owner only
 
-	mu      sync.Mutex
-	link    driver.LinkStatus
-	desc    driver.Description
-	failed  int // exchanges failed in a row
-	retryAt time.Time
+	mu   sync.Mutex
+	link driver.LinkStatus
+	desc driver.Description
+	// identity is what the instrument answered to identify on the first connection.
+	identity string
+	failed   int // exchanges failed in a row
+	retryAt  time.Time
 }
 
 var (

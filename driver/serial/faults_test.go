@@ -5,6 +5,7 @@ package serial_test
 import (
 	"context"
 	"errors"
+	"path/filepath"
 	"strings"
 	"testing"
 	"time"
@@ -155,6 +156,58 @@ func TestDeviceVanishes(t *testing.T) {
 	}
 	if _, err := drv.Position(ctx, "theta"); err != nil {
 		t.Errorf("Position after the device came back: %v", err)
+	}
+}
+
+// TestSwappedInstrumentRefused: the device goes away and another instrument answers at the same path (an
+// adapter moved to the next bench): the link stays down naming both identities, with high voltage commanded off
+// on the one that answered; when the first instrument is back, the link comes up again.
+func TestSwappedInstrumentRefused(t *testing.T) {
+	t.Parallel()
+	link := filepath.Join(t.TempDir(), "tty")
+	first, stop := serveAt(t, sim.Config{}, scpi.Options{}, link)
+	t.Cleanup(stop)
+	drv := openDriver(t, first, nil)
+	ctx := ctxFor(t, 20*time.Second)
+	if _, err := drv.Position(ctx, "theta"); err != nil {
+		t.Fatal(err)
+	}
+	stop()
+	other, stopOther := serveAt(t, sim.Config{Anode: "Mo"}, scpi.Options{}, link)
+	t.Cleanup(stopOther)
+	if err := other.inst.SetHighVoltage(ctx, true); err != nil {
+		t.Fatal(err)
+	}
+	deadline := time.Now().Add(10 * time.Second)
+	for {
+		_, err := drv.Position(ctx, "theta")
+		s := drv.LinkStatus()
+		if strings.Contains(s.Reason, "different instrument") {
+			if !errors.Is(err, driver.ErrLinkDown) && err != nil || s.State == driver.LinkUp {
+				t.Fatalf("link %+v, Position error %v; want the link down", s, err)
+			}
+			if !strings.Contains(s.Reason, "Mo-LiF") || !strings.Contains(s.Reason, "Cu-LiF") {
+				t.Errorf("reason %q does not name both instruments", s.Reason)
+			}
+			break
+		}
+		if err == nil && s.State == driver.LinkUp && s.Reconnects > 0 {
+			t.Fatalf("the driver took the other instrument: %+v", s)
+		}
+		if time.Now().After(deadline) {
+			t.Fatalf("no refusal of the other instrument within 10 s: %+v (last error %v)", s, err)
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+	if other.inst.State().HighVoltage {
+		t.Error("high voltage still on on the instrument that answered")
+	}
+	stopOther()
+	back, stopBack := serveAt(t, sim.Config{}, scpi.Options{}, link)
+	t.Cleanup(stopBack)
+	waitUp(t, drv, 5*time.Second)
+	if _, err := drv.Position(ctx, "theta"); err != nil || back.inst.State().HighVoltage {
+		t.Errorf("after the first instrument came back: %v, high voltage %v", err, back.inst.State().HighVoltage)
 	}
 }
 

@@ -137,13 +137,16 @@ func (d *Driver) connect(ctx context.Context, first bool) (*conn, error) {
 
 func (d *Driver) handshake(ctx context.Context, c *conn, first bool) error {
 	ops := d.prof.ops
+	var identity []values
 	if ops["sync"] != nil {
 		c.needSync = true
 		if err := c.resync(ctx); err != nil {
 			return fmt.Errorf("the instrument does not answer: %w", err)
 		}
-	} else if _, err := c.exchange(ctx, ops["identify"], nil, 0); err != nil {
+	} else if r, err := c.exchange(ctx, ops["identify"], nil, 0); err != nil {
 		return fmt.Errorf("the instrument does not answer: %w", err)
+	} else {
+		identity = r
 	}
 	for _, name := range []string{"clear", "high_voltage_off"} {
 		if op := ops[name]; op != nil {
@@ -151,6 +154,16 @@ func (d *Driver) handshake(ctx context.Context, c *conn, first bool) error {
 				return fmt.Errorf("%s: %w", name, err)
 			}
 		}
+	}
+	if identity == nil {
+		r, err := c.exchange(ctx, ops["identify"], nil, 0)
+		if err != nil {
+			return fmt.Errorf("identify: %w", err)
+		}
+		identity = r
+	}
+	if err := d.sameInstrument(identity, first); err != nil {
+		return err
 	}
 	if op := ops["describe"]; first && op != nil {
 		r, err := c.exchange(ctx, op, nil, 0)
@@ -160,6 +173,28 @@ func (d *Driver) handshake(ctx context.Context, c *conn, first bool) error {
 		d.mu.Lock()
 		d.desc = described(d.desc, r[0])
 		d.mu.Unlock()
+	}
+	return nil
+}
+
+// sameInstrument remembers the identity the first connection found, and refuses a later connection to an
+// instrument that answers with another: goniod's limits, offsets and description were made for the first one
+// (a swapped adapter or cable may lead to the bench next door). The link stays down, saying so, until that
+// instrument is back or goniod is restarted; high voltage has been commanded off on whichever answered.
+func (d *Driver) sameInstrument(r []values, first bool) error {
+	var id string
+	if len(r) > 0 {
+		id, _ = r[0]["text"].(string)
+	}
+	d.mu.Lock()
+	defer d.mu.Unlock()
+	if first || d.identity == "" {
+		d.identity = id
+		return nil
+	}
+	if id != d.identity {
+		return fmt.Errorf("a different instrument answers (%q; goniod started with %q): its limits and description "+
+			"would not apply; reconnect the first one, or restart goniod to use this one", id, d.identity)
 	}
 	return nil
 }
