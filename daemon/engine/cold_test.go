@@ -3,8 +3,10 @@ package engine_test
 import (
 	"context"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
+	"sync"
 	"testing"
 	"time"
 
@@ -168,5 +170,65 @@ func TestRestartLeavesEndedRecordsAlone(t *testing.T) {
 	}
 	if got, err := eng.Get(rec.ID); err != nil || got.State != scan.Done || got.PointsDone != 5 {
 		t.Errorf("after the restart: %s with %d points (%v)", got.State, got.PointsDone, err)
+	}
+}
+
+// Watches, reads and listings of scans that end meanwhile, all at once: every watch of a scan delivers all
+// its points and the end, whether its hub was live, dropped or made again from the store (run with -race).
+func TestColdAndWarmConcurrently(t *testing.T) {
+	r := startWatchRig(t)
+	const scans, watchers = 8, 12
+	var ids []string
+	for range scans {
+		rec, err := r.eng.Submit(timedScan(50))
+		if err != nil {
+			t.Fatal(err)
+		}
+		ids = append(ids, rec.ID)
+	}
+	errs := make(chan error, scans*watchers*3)
+	var wg sync.WaitGroup
+	for i, id := range ids {
+		for w := range watchers {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				for round := range 3 {
+					n, end := 0, false
+					err := r.eng.Watch(context.Background(), id, 0, func(ev engine.Event) error {
+						if ev.Point != nil {
+							if int(ev.Point.Index) != n {
+								return fmt.Errorf("point %d where %d was due", ev.Point.Index, n)
+							}
+							n++
+						}
+						end = ev.End
+						return nil
+					})
+					if err == nil && (!end || n != 50) {
+						err = fmt.Errorf("%d points, end %v", n, end)
+					}
+					if err != nil {
+						errs <- fmt.Errorf("scan %d watcher %d round %d: %w", i, w, round, err)
+					}
+					if _, err := r.eng.Get(id); err != nil {
+						errs <- err
+					}
+					if _, _, err := r.eng.List("", 3, nil); err != nil {
+						errs <- err
+					}
+				}
+			}()
+		}
+	}
+	wg.Wait()
+	close(errs)
+	for err := range errs {
+		t.Error(err)
+	}
+	for _, id := range ids {
+		if rec, err := r.eng.Get(id); err != nil || rec.State != scan.Done || rec.PointsDone != 50 {
+			t.Errorf("%s: %s with %d points (%v)", id, rec.State, rec.PointsDone, err)
+		}
 	}
 }
