@@ -171,6 +171,9 @@ func TestRestartLeavesEndedRecordsAlone(t *testing.T) {
 	if got, err := eng.Get(rec.ID); err != nil || got.State != scan.Done || got.PointsDone != 5 {
 		t.Errorf("after the restart: %s with %d points (%v)", got.State, got.PointsDone, err)
 	}
+	if n := eng.CountByState(); n[scan.Done] != 1 || len(n) != 1 || eng.QueueLength() != 0 {
+		t.Errorf("after the restart the scans count as %v, queue %d", n, eng.QueueLength())
+	}
 }
 
 // Watches, reads and listings of scans that end meanwhile, all at once: every watch of a scan delivers all

@@ -8,6 +8,8 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"maps"
+	"slices"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -67,10 +69,14 @@ type Engine struct {
 	// alignment, ends with it.
 	life context.Context
 
-	mu      sync.Mutex
-	scans   map[string]*entry
-	ids     []string // in increasing order
-	manual  bool     // a manual operation holds the instrument
+	mu    sync.Mutex
+	scans map[string]*entry
+	ids   []string // in increasing order
+	// active: the scans that have not ended, in ID order (what the queue looks at); ended: how many scans
+	// ended in each terminal state.
+	active  []*entry
+	ended   map[scan.State]int
+	manual  bool // a manual operation holds the instrument
 	running *entry
 	// draining: the daemon shuts down; the running scan stops after its point and no other starts (Drain)
 	draining bool
@@ -181,7 +187,7 @@ func New(o Options) (*Engine, error) {
 		o.Now = time.Now
 	}
 	e := &Engine{store: o.Store, ctl: o.Controller, log: o.Log, obs: o.Observer, version: o.Version, now: o.Now,
-		maxQueued: o.MaxQueued, scans: map[string]*entry{}, wake: make(chan struct{}, 1)}
+		maxQueued: o.MaxQueued, scans: map[string]*entry{}, ended: map[scan.State]int{}, wake: make(chan struct{}, 1)}
 	recs, err := e.store.LoadRecords()
 	if err != nil {
 		return nil, err
@@ -191,8 +197,14 @@ func New(o Options) (*Engine, error) {
 		if err != nil {
 			return nil, err
 		}
-		e.scans[rec.ID] = newEntry(*rec, durable)
+		en := newEntry(*rec, durable)
+		e.scans[rec.ID] = en
 		e.ids = append(e.ids, rec.ID)
+		if rec.State.Terminal() {
+			e.ended[rec.State]++
+		} else {
+			e.active = append(e.active, en)
+		}
 	}
 	if err := e.applyStoredAlignment(); err != nil {
 		return nil, err
@@ -324,8 +336,8 @@ func (e *Engine) List(after string, limit int, states []scan.State) (recs []scan
 func (e *Engine) CountByState() map[scan.State]int {
 	e.mu.Lock()
 	defer e.mu.Unlock()
-	out := map[scan.State]int{}
-	for _, en := range e.scans {
+	out := maps.Clone(e.ended)
+	for _, en := range e.active {
 		out[en.state()]++
 	}
 	return out
@@ -336,12 +348,20 @@ func (e *Engine) QueueLength() int {
 	e.mu.Lock()
 	defer e.mu.Unlock()
 	n := 0
-	for _, en := range e.scans {
+	for _, en := range e.active {
 		if en.state() == scan.Queued {
 			n++
 		}
 	}
 	return n
+}
+
+// retireLocked takes a scan that has just ended off the active list (e.mu held).
+func (e *Engine) retireLocked(en *entry, state scan.State) {
+	if i := slices.Index(e.active, en); i >= 0 {
+		e.active = slices.Delete(e.active, i, i+1)
+		e.ended[state]++
+	}
 }
 
 // Running returns the running scan's record, if any.
@@ -373,10 +393,10 @@ func (e *Engine) Manual(fn func() error) error {
 		}
 		return fmt.Errorf("%w: scan %s is running; pause or cancel it first", errManualBusy, en.id)
 	}
-	for _, id := range e.ids {
-		if e.scans[id].state() == scan.Paused {
+	for _, en := range e.active {
+		if en.state() == scan.Paused {
 			e.mu.Unlock()
-			return fmt.Errorf("%w: scan %s is paused; resume or cancel it first", errManualBusy, id)
+			return fmt.Errorf("%w: scan %s is paused; resume or cancel it first", errManualBusy, en.id)
 		}
 	}
 	if e.manual {

@@ -20,6 +20,11 @@ func (e *Engine) setState(en *entry, mutate func(*scan.Record)) (scan.Record, er
 	rec := h.record()
 	mutate(&rec)
 	h.setRecord(rec)
+	if rec.State.Terminal() {
+		e.mu.Lock()
+		e.retireLocked(en, rec.State)
+		e.mu.Unlock()
+	}
 	e.obs.StateChanged(&rec)
 	if err := e.store.SaveRecord(&rec); err != nil {
 		return rec, fmt.Errorf("%w: %w", ErrStorage, err)
@@ -87,6 +92,9 @@ func (e *Engine) operate(id, op string, flag func(*entry), apply func(*scan.Reco
 	apply(&rec)
 	en.pauseReq, en.cancelReq = false, false
 	h.setRecord(rec)
+	if rec.State.Terminal() {
+		e.retireLocked(en, rec.State)
+	}
 	e.mu.Unlock()
 	e.obs.StateChanged(&rec)
 	e.log.Info("scan "+string(rec.State), "scan", id, "op", op)

@@ -49,8 +49,7 @@ func (e *Engine) next() *entry {
 		return nil
 	}
 	var pick *entry
-	for _, id := range e.ids {
-		en := e.scans[id]
+	for _, en := range e.active {
 		switch en.state() {
 		case scan.Paused:
 			return nil

@@ -3,6 +3,7 @@ package engine
 import (
 	"fmt"
 	"slices"
+	"strings"
 
 	"goniod/daemon/instrument"
 	"goniod/daemon/scan"
@@ -101,7 +102,7 @@ func (e *Engine) roomFor(n int) error {
 	}
 	waiting := 0
 	e.mu.Lock()
-	for _, en := range e.scans {
+	for _, en := range e.active {
 		if s := en.state(); s == scan.Queued || s == scan.Held {
 			waiting++
 		}
@@ -128,8 +129,11 @@ func (e *Engine) create(r scan.Request, p *scan.Plan, seriesID, id string, cfg *
 	e.mu.Lock()
 	e.scans[rec.ID] = en
 	e.ids = append(e.ids, rec.ID)
+	e.active = append(e.active, en)
 	if n := len(e.ids); n > 1 && e.ids[n-2] > e.ids[n-1] {
-		slices.Sort(e.ids) // an alignment took its ID while a series was being stored
+		// An alignment took its ID while a series was being stored.
+		slices.Sort(e.ids)
+		slices.SortFunc(e.active, func(a, b *entry) int { return strings.Compare(a.id, b.id) })
 	}
 	e.mu.Unlock()
 	e.log.Info("scan queued", "scan", rec.ID, "kind", r.Kind, "points", rec.PointsTotal, "series", seriesID, "label", r.Label)
