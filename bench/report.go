@@ -145,9 +145,7 @@ func acquisitionRows(t *table, r *results, pointTime time.Duration) {
 		}
 		v := time.Duration(us * 1e3)
 		rw := row{section: "2", figure: c.label, value: dur(v), aim: "≤ 50 µs", met: yes(v <= 50*time.Microsecond)}
-		if pointTime > 0 {
-			rw.baseline, rw.ratio = "one point at 115200 baud (row 1): "+dur(pointTime), times(float64(v)/float64(pointTime))
-		}
+		rw.baseline, rw.ratio = againstPoint(v, pointTime)
 		t.add(rw)
 	}
 }
@@ -163,17 +161,16 @@ func streamingRows(t *table, r *results) {
 	}
 }
 
+// againstPoint is the baseline of a time per point: one point of a real instrument at 115200 baud (row 1),
+// and the ratio of v to it; both empty when the serial section did not run.
+func againstPoint(v, pointTime time.Duration) (baseline, ratio string) {
+	if pointTime <= 0 {
+		return "", ""
+	}
+	return "one point at 115200 baud (row 1): " + dur(pointTime), times(float64(v) / float64(pointTime))
+}
+
 func fanOutRows(t *table, r *results, pointTime time.Duration) {
-	base := ""
-	if pointTime > 0 {
-		base = "one point at 115200 baud (row 1): " + dur(pointTime)
-	}
-	ratio := func(p99 time.Duration) string {
-		if pointTime == 0 {
-			return ""
-		}
-		return times(float64(p99) / float64(pointTime))
-	}
 	for _, c := range []struct {
 		res   map[string]benchResult
 		name  string
@@ -192,7 +189,8 @@ func fanOutRows(t *table, r *results, pointTime time.Duration) {
 			continue
 		}
 		d50, d99 := time.Duration(p50*1e6), time.Duration(p99*1e6)
-		t.add(row{section: "4", figure: c.label, value: dur(d50) + " / " + dur(d99), baseline: base, ratio: ratio(d99),
+		base, ratio := againstPoint(d99, pointTime)
+		t.add(row{section: "4", figure: c.label, value: dur(d50) + " / " + dur(d99), baseline: base, ratio: ratio,
 			aim: "p99 ≤ 5 ms", met: yes(d99 <= 5*time.Millisecond)})
 	}
 	if f := r.fanOut; f != nil {

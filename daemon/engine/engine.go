@@ -10,6 +10,7 @@ import (
 	"log/slog"
 	"maps"
 	"slices"
+	"strings"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -197,14 +198,7 @@ func New(o Options) (*Engine, error) {
 		if err != nil {
 			return nil, err
 		}
-		en := newEntry(*rec, durable)
-		e.scans[rec.ID] = en
-		e.ids = append(e.ids, rec.ID)
-		if rec.State.Terminal() {
-			e.ended[rec.State]++
-		} else {
-			e.active = append(e.active, en)
-		}
+		e.addLocked(newEntry(*rec, durable)) // the engine is not shared yet
 	}
 	if err := e.applyStoredAlignment(); err != nil {
 		return nil, err
@@ -354,6 +348,22 @@ func (e *Engine) QueueLength() int {
 		}
 	}
 	return n
+}
+
+// addLocked makes a scan known (e.mu held): in ID order, on the active list unless it has ended.
+func (e *Engine) addLocked(en *entry) {
+	e.scans[en.id] = en
+	e.ids = append(e.ids, en.id)
+	if c := en.cold.Load(); c != nil {
+		e.ended[c.state]++
+	} else {
+		e.active = append(e.active, en)
+	}
+	if n := len(e.ids); n > 1 && e.ids[n-2] > e.ids[n-1] {
+		// An alignment took its ID while a series was being stored.
+		slices.Sort(e.ids)
+		slices.SortFunc(e.active, func(a, b *entry) int { return strings.Compare(a.id, b.id) })
+	}
 }
 
 // retireLocked takes a scan that has just ended off the active list (e.mu held).

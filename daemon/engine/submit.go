@@ -2,8 +2,6 @@ package engine
 
 import (
 	"fmt"
-	"slices"
-	"strings"
 
 	"goniod/daemon/instrument"
 	"goniod/daemon/scan"
@@ -127,14 +125,7 @@ func (e *Engine) create(r scan.Request, p *scan.Plan, seriesID, id string, cfg *
 	}
 	en := newEntry(rec, 0)
 	e.mu.Lock()
-	e.scans[rec.ID] = en
-	e.ids = append(e.ids, rec.ID)
-	e.active = append(e.active, en)
-	if n := len(e.ids); n > 1 && e.ids[n-2] > e.ids[n-1] {
-		// An alignment took its ID while a series was being stored.
-		slices.Sort(e.ids)
-		slices.SortFunc(e.active, func(a, b *entry) int { return strings.Compare(a.id, b.id) })
-	}
+	e.addLocked(en)
 	e.mu.Unlock()
 	e.log.Info("scan queued", "scan", rec.ID, "kind", r.Kind, "points", rec.PointsTotal, "series", seriesID, "label", r.Label)
 	e.obs.StateChanged(&rec)
